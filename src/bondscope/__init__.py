@@ -1,0 +1,57 @@
+"""bondscope: entanglement profiles of many-body states stored in checkpoints.
+
+The stages, in the order data flows through them::
+
+    checkpoint (HDF5, read-only) -> source -> sweep -> Profile document
+        -> analyses (scaling fit, bond budget, comparison) -> outputs
+
+Profiling
+---------
+profile          -- Profile of a checkpoint path, a state vector or a list of site tensors
+inspect          -- what a checkpoint holds and what profiling it will cost, without spectra
+open_source      -- the validated source (chain of site tensors, or amplitudes) of a checkpoint
+Profile          -- the Profile document (entropies, spectra, to_json, save)
+load_profile     -- read a saved profile (.json, .h5, .csv)
+
+Measures
+--------
+entropy_measures -- von Neumann and Rényi entropies, rank and levels of one spectrum
+
+Errors
+------
+CheckpointError  -- a checkpoint or profile that cannot be read as it stands
+MemoryLimitError -- work refused by the pre-flight memory estimate
+
+Heavy dependencies (scipy, numba, matplotlib, dask) are imported only when a
+function that needs them runs.
+"""
+
+from importlib import import_module
+
+from ._errors import CheckpointError, MemoryLimitError
+
+__version__ = "0.1.0"
+
+_LAZY = {
+    "profile": "bondscope._pipeline",
+    "inspect": "bondscope._pipeline",
+    "open_source": "bondscope._checkpoint",
+    "Profile": "bondscope._document",
+    "load_profile": "bondscope._document",
+    "entropy_measures": "bondscope._measure",
+}
+
+__all__ = ["CheckpointError", "MemoryLimitError", "__version__", *_LAZY]
+
+
+def __getattr__(name):
+    module = _LAZY.get(name)
+    if module is None:
+        raise AttributeError(f"module 'bondscope' has no attribute {name!r}")
+    value = getattr(import_module(module), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__():
+    return sorted(__all__)

@@ -1,0 +1,21 @@
+"""Error types raised at bondscope's public boundary."""
+
+__all__ = ["CheckpointError", "MemoryLimitError", "EXIT_USAGE", "EXIT_CHECKPOINT", "EXIT_MEMORY",
+           "EXIT_FAILED"]
+
+EXIT_USAGE = 2
+EXIT_CHECKPOINT = 3
+EXIT_MEMORY = 4
+EXIT_FAILED = 1
+
+
+class CheckpointError(ValueError):
+    """A checkpoint (or saved profile) that cannot be read as it stands.
+
+    The message names the file, dataset or site and says what was expected,
+    what was found and, where there is one, how to fix it.
+    """
+
+
+class MemoryLimitError(MemoryError):
+    """Work refused before it starts because its memory estimate exceeds the limit."""

@@ -1,0 +1,304 @@
+"""Sources: validated site tensors or amplitudes, read lazily.
+
+A source knows shapes and dtype from metadata alone; data is read one tensor
+at a time when the sweep asks for it, and checked for NaN/Inf as it arrives.
+"""
+
+from itertools import permutations
+from math import prod
+
+import numpy as np
+
+from ._errors import CheckpointError
+
+__all__ = ["ChainSource", "AmplitudeSource", "AXIS_WORDS", "parse_axes", "chain_from_arrays",
+           "amplitudes_from_array", "compute_dtype", "numeric_dtype"]
+
+AXIS_WORDS = ("left", "phys", "right")
+
+
+def parse_axes(text):
+    """'left,phys,right' (any permutation) -> tuple of words."""
+    words = tuple(w.strip().lower() for w in text.split(",")) if isinstance(text, str) \
+        else tuple(text)
+    for w in words:
+        if w not in AXIS_WORDS:
+            raise ValueError(f"unknown axis word {w!r} in axes {','.join(words)}; "
+                             "use a permutation of left,phys,right")
+    if sorted(words) != sorted(AXIS_WORDS):
+        raise ValueError(f"axes {','.join(words)} is not a permutation of left,phys,right")
+    return words
+
+
+def numeric_dtype(dtype, where):
+    """Check a stored dtype is real or complex numbers; return it as a numpy dtype."""
+    dtype = np.dtype(dtype)
+    if dtype.kind in "fciu" and dtype.itemsize <= 16:
+        return dtype
+    raise CheckpointError(f"{where}: dtype {dtype} is not numeric; expected real or complex "
+                          "floating-point numbers")
+
+
+def compute_dtype(dtype, precision="promote"):
+    """The dtype the sweep works in: float64/complex128, or the stored single precision."""
+    dtype = np.dtype(dtype)
+    if precision == "stored" and dtype in (np.float32, np.complex64):
+        return dtype
+    return np.dtype(np.complex128 if dtype.kind == "c" else np.float64)
+
+
+def _canonical(shape, words, first, last):
+    """Stored shape -> (left, phys, right) under the axis words; rank-2 ends get a bond of 1."""
+    if len(shape) == 3:
+        named = dict(zip(words, shape))
+    elif len(shape) == 2 and (first or last):
+        drop = "left" if first else "right"
+        named = dict(zip([w for w in words if w != drop], shape))
+        named[drop] = 1
+    else:
+        return None
+    return named["left"], named["phys"], named["right"]
+
+
+def _chain_problem(shapes, labels, words):
+    """First reason the shapes do not form an open chain under ``words``, or None."""
+    n = len(shapes)
+    canon = []
+    for i, shape in enumerate(shapes):
+        c = _canonical(shape, words, i == 0, i == n - 1)
+        if c is None:
+            allowed = "3 (or 2 at an end of the chain)"
+            return f"site {labels[i]}: tensor has rank {len(shape)} {tuple(shape)}, expected rank {allowed}"
+        canon.append(c)
+    if canon[0][0] != 1:
+        return (f"site {labels[0]}: left bond is {canon[0][0]}, expected 1 at the open end "
+                f"of the chain (shape {tuple(shapes[0])}, axes {','.join(words)})")
+    if canon[-1][2] != 1:
+        return (f"site {labels[-1]}: right bond is {canon[-1][2]}, expected 1 at the open end "
+                f"of the chain (shape {tuple(shapes[-1])}, axes {','.join(words)})")
+    for i in range(1, n):
+        if canon[i][0] != canon[i - 1][2]:
+            return (f"site {labels[i]}: left bond {canon[i][0]} does not meet site "
+                    f"{labels[i - 1]}'s right bond {canon[i - 1][2]}")
+    return None
+
+
+def resolve_axes(shapes, labels, axes=None, where="chain"):
+    """Axis words for a chain: the given ones (checked) or the unambiguous inferred ones.
+
+    Raises
+    ------
+    CheckpointError
+        Shapes do not chain, or several orders chain and the default is not one.
+    """
+    if len(shapes) < 2:
+        raise CheckpointError(f"{where}: found {len(shapes)} site tensor(s); a chain needs at "
+                              "least 2 sites to have a cut")
+    if axes is not None:
+        words = parse_axes(axes)
+        problem = _chain_problem(shapes, labels, words)
+        if problem:
+            raise CheckpointError(f"{where}: {problem}")
+        return words
+    fits = [w for w in permutations(AXIS_WORDS) if _chain_problem(shapes, labels, w) is None]
+    if AXIS_WORDS in fits or len(fits) == 1:
+        return AXIS_WORDS if AXIS_WORDS in fits else fits[0]
+    if not fits:
+        raise CheckpointError(f"{where}: {_chain_problem(shapes, labels, AXIS_WORDS)}; no axis "
+                              "order makes the bonds chain (set --axes if the order is unusual)")
+    listed = "; ".join(",".join(w) for w in fits)
+    raise CheckpointError(f"{where}: the bonds chain under several axis orders ({listed}); "
+                          "choose one with --axes")
+
+
+class _Held:
+    """Closing and context management for sources that may hold a file open."""
+
+    def close(self):
+        """Release the checkpoint file (no-op for in-memory sources)."""
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        self.close()
+
+
+class ChainSource(_Held):
+    """Site tensors of an open-boundary MPS, read one at a time.
+
+    Parameters
+    ----------
+    shapes : list of tuple
+        Stored shape of each site tensor.
+    dtype : numpy dtype
+        Stored dtype (numeric).
+    read : callable
+        ``read(i)`` returns site i's stored array (any layout of ``shapes[i]``).
+    labels : list
+        Site labels for messages (the checkpoint's own numbering).
+    axes : tuple of str
+        Stored axis order (words), already resolved.
+    name : str
+        Description for messages and the profile's ``source`` field.
+
+    Notes
+    -----
+    ``tensor(i)`` returns an array shaped (left, phys, right) in the compute
+    dtype; only that tensor is in memory.
+    """
+
+    kind = "mps"
+
+    def __init__(self, shapes, dtype, read, labels, axes, name, precision="promote"):
+        self.stored_shapes = [tuple(int(x) for x in s) for s in shapes]
+        self.axes = tuple(axes)
+        n = len(shapes)
+        self.shapes = [_canonical(s, self.axes, i == 0, i == n - 1)
+                       for i, s in enumerate(self.stored_shapes)]
+        self.dtype = np.dtype(dtype)
+        self.compute_dtype = compute_dtype(self.dtype, precision)
+        self.labels = list(labels)
+        self.name = name
+        self._read = read
+
+    @property
+    def sites(self):
+        return len(self.shapes)
+
+    @property
+    def local_dims(self):
+        return [s[1] for s in self.shapes]
+
+    @property
+    def bond_dims(self):
+        """Internal bond dimensions, one per cut (length N-1)."""
+        return [s[2] for s in self.shapes[:-1]]
+
+    @property
+    def nbytes(self):
+        return sum(prod(s) for s in self.shapes) * self.dtype.itemsize
+
+    def tensor(self, i):
+        """Site i as an array shaped (left, phys, right) in the compute dtype."""
+        raw = np.asarray(self._read(i))
+        if raw.shape != self.stored_shapes[i]:
+            raise CheckpointError(f"{self.name}: site {self.labels[i]} read with shape "
+                                  f"{raw.shape}, its metadata said {self.stored_shapes[i]}")
+        if not np.isfinite(raw).all():
+            raise CheckpointError(f"{self.name}: site {self.labels[i]} holds NaN or Inf values")
+        words = self.axes if raw.ndim == 3 else \
+            [w for w in self.axes if w != ("left" if i == 0 else "right")]
+        a = raw.transpose([words.index(w) for w in AXIS_WORDS if w in words])
+        return np.ascontiguousarray(a.reshape(self.shapes[i]), dtype=self.compute_dtype)
+
+
+class AmplitudeSource(_Held):
+    """A state vector over N sites with local dimensions d_1..d_N.
+
+    Parameters
+    ----------
+    local_dims : list of int
+    dtype : numpy dtype
+        Stored dtype.
+    read : callable
+        ``read()`` returns the amplitudes (any shape with prod(local_dims) entries,
+        site 1 the slowest index).
+    name : str
+    """
+
+    kind = "state-vector"
+
+    def __init__(self, local_dims, dtype, read, name, precision="promote"):
+        self.local_dims = [int(d) for d in local_dims]
+        self.dtype = np.dtype(dtype)
+        self.compute_dtype = compute_dtype(self.dtype, precision)
+        self.name = name
+        self._read = read
+
+    @property
+    def sites(self):
+        return len(self.local_dims)
+
+    @property
+    def size(self):
+        return prod(self.local_dims)
+
+    @property
+    def nbytes(self):
+        return self.size * self.dtype.itemsize
+
+    def amplitudes(self):
+        """All amplitudes as a 1-D array in the compute dtype."""
+        raw = np.asarray(self._read())
+        if raw.size != self.size:
+            raise CheckpointError(f"{self.name}: read {raw.size} amplitudes, expected "
+                                  f"{self.size}")
+        a = np.ascontiguousarray(raw.reshape(-1), dtype=self.compute_dtype)
+        if not np.isfinite(a).all():
+            raise CheckpointError(f"{self.name}: the state vector holds NaN or Inf values")
+        return a
+
+
+def split_local_dims(size, local_dim, where):
+    """Local dimensions of a 1-D state of ``size`` amplitudes.
+
+    ``local_dim`` is one integer d (size must be a power of d) or a list whose
+    product is size.
+    """
+    if local_dim is None:
+        local_dim = 2
+    if isinstance(local_dim, (list, tuple)):
+        dims = [int(d) for d in local_dim]
+        if any(d < 1 for d in dims) or prod(dims) != size:
+            raise CheckpointError(f"{where}: length {size} is not the product of the local "
+                                  f"dimensions {','.join(map(str, dims))} (= {prod(dims)})")
+        return dims
+    d = int(local_dim)
+    if d < 2:
+        raise ValueError(f"local dimension must be >= 2, found {d}")
+    n, rest = 0, size
+    while rest > 1 and rest % d == 0:
+        rest //= d
+        n += 1
+    if rest != 1 or n < 2:
+        raise CheckpointError(f"{where}: length {size} is not a power d^N of the local "
+                              f"dimension d={d} with N >= 2; set --local-dim (an integer or a "
+                              "comma list per site)")
+    return [d] * n
+
+
+def _array(a, where):
+    if not isinstance(a, np.ndarray):
+        a = np.asarray(a)
+    numeric_dtype(a.dtype, where)
+    return a
+
+
+def chain_from_arrays(tensors, axes=None, precision="promote"):
+    """A ChainSource over in-memory site tensors (list of arrays)."""
+    if isinstance(tensors, np.ndarray) or not len(tensors):
+        raise TypeError("site tensors must be a non-empty list of arrays")
+    arrays = [_array(t, f"site {i}") for i, t in enumerate(tensors)]
+    dtype = np.result_type(*arrays)
+    if dtype.kind not in "fc":
+        dtype = np.dtype(np.float64)
+    labels = list(range(len(arrays)))
+    shapes = [a.shape for a in arrays]
+    words = resolve_axes(shapes, labels, axes, where="site tensors")
+    return ChainSource(shapes, dtype, arrays.__getitem__, labels, words, "<arrays>", precision)
+
+
+def amplitudes_from_array(state, local_dim=None, precision="promote"):
+    """An AmplitudeSource over an in-memory state vector (1-D, or shaped (d_1, ..., d_N))."""
+    a = _array(state, "state vector")
+    if a.ndim == 1:
+        dims = split_local_dims(a.size, local_dim, "state vector")
+    else:
+        dims = list(a.shape)
+        if local_dim is not None and list(np.atleast_1d(local_dim)) not in ([*dims], [dims[0]]):
+            raise ValueError(f"state shaped {a.shape} does not match local_dim {local_dim}")
+        if len(dims) < 2:
+            raise CheckpointError(f"state vector shaped {a.shape}: needs at least 2 sites")
+    dtype = a.dtype if a.dtype.kind in "fc" else np.dtype(np.float64)
+    return AmplitudeSource(dims, dtype, lambda: a, "<array>", precision)

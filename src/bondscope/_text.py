@@ -1,0 +1,78 @@
+"""Plain-text output: the per-cut table and the inspect summary."""
+
+from ._estimate import format_bytes
+
+__all__ = ["profile_table", "inspect_text"]
+
+
+def _unit(profile):
+    base = profile.log_base
+    return "nats" if abs(base - 2.718281828459045) < 1e-12 else \
+        ("bits" if base == 2 else f"log base {base:g}")
+
+
+def profile_table(profile):
+    """A readable per-cut table of a Profile, with a header and a truncation summary."""
+    cuts = profile.cuts
+    dims = profile.local_dims or []
+    dim_text = str(dims[0]) if dims and len(set(dims)) == 1 else ",".join(map(str, dims))
+    lines = [f"{profile.source}",
+             f"  {profile.kind}, {profile.sites} sites, local dims {dim_text}, "
+             f"{profile.get('dtype', '?')}, norm {profile.norm:.12g}, "
+             f"route {profile.get('route', '?')}, entropies in {_unit(profile)}"]
+    orders = profile.renyi_orders
+    trunc = profile.truncation
+    head = ["cut", "bond", "rank", "S"] + [f"S_{a}" for a in orders] + ["floor"]
+    if trunc:
+        head += ["kept", "discarded"]
+    rows = []
+    for c in cuts:
+        row = [str(c["position"]), str(c.get("bond_dimension", "")),
+               str(c.get("schmidt_rank", "")), f"{c['entropy']:.10f}"]
+        row += [f"{c['renyi'][a]:.10f}" for a in orders]
+        row.append(f"{c.get('resolution_floor', float('nan')):.1e}")
+        if trunc:
+            row += [str(c.get("kept", "")), f"{c.get('discarded_weight', 0.0):.3e}"]
+        rows.append(row)
+    widths = [max(len(h), *(len(r[i]) for r in rows)) for i, h in enumerate(head)]
+    fmt = "  ".join(f"{{:>{w}}}" for w in widths)
+    lines.append(fmt.format(*head))
+    lines += [fmt.format(*r) for r in rows]
+    if cuts:
+        peak = max(cuts, key=lambda c: c["entropy"])
+        lines.append(f"max S = {peak['entropy']:.10f} at cut {peak['position']}; "
+                     f"max bond {max(c.get('bond_dimension', 0) for c in cuts)}")
+    if trunc:
+        lines.append(f"truncation bond_dim={trunc['bond_dim']} weight_tol={trunc['weight_tol']}: "
+                     f"infidelity {trunc['infidelity']:.6e} (bound: sum of discarded weights "
+                     f"{trunc['bound']:.6e})")
+    return "\n".join(lines)
+
+
+def inspect_text(info):
+    """Human-readable summary of :func:`bondscope.inspect`."""
+    dims = info["local_dims"]
+    dim_text = str(dims[0]) if len(set(dims)) == 1 else ",".join(map(str, dims))
+    est = info["estimate"]
+    lines = [f"{info['source']}",
+             f"  kind          {info['kind']}",
+             f"  sites         {info['sites']}",
+             f"  local dims    {dim_text}",
+             f"  dtype         {info['dtype']}"]
+    if info["kind"] == "mps":
+        bonds = info["bond_dims"]
+        shown = " ".join(map(str, bonds)) if len(bonds) <= 24 else \
+            " ".join(map(str, bonds[:10])) + " ... " + " ".join(map(str, bonds[-10:]))
+        lines += [f"  axes          {info['axes']}",
+                  f"  bond dims     {shown} (max {info['max_bond_dim']})"]
+    else:
+        lines.append(f"  route         {info['route']}")
+    size = format_bytes(info["data_bytes"])
+    if "file_bytes" in info:
+        size += f" of data in a {format_bytes(info['file_bytes'])} file"
+    avail = info.get("available_memory")
+    lines += [f"  size          {size}",
+              f"  estimate      {format_bytes(est['memory_bytes'])} memory, "
+              f"about {est['seconds']:.2g} s"
+              + (f" (available memory {format_bytes(avail)})" if avail is not None else "")]
+    return "\n".join(lines)

@@ -1,0 +1,1 @@
+"""Independent physics references used to validate bondscope."""
