@@ -24,6 +24,7 @@ Example
 >>> tensors = run.tensors          # list of (left, phys, right) arrays
 """
 
+import math
 from collections import namedtuple
 
 import numpy as np
@@ -200,9 +201,8 @@ def _split(theta, bond_dim, cutoff):
 
 def _random_mps(dims, bond_dim, rng, dtype):
     L = len(dims)
-    left = np.cumprod([1] + list(dims))
-    right = np.cumprod([1] + list(dims[::-1]))[::-1]
-    chis = [int(min(bond_dim, left[i], right[i])) for i in range(L + 1)]
+    # exact Python integers: prod(dims) overflows int64 for long chains
+    chis = [min(bond_dim, math.prod(dims[:i]), math.prod(dims[i:])) for i in range(L + 1)]
     tensors = []
     for i, d in enumerate(dims):
         shape = (chis[i], d, chis[i + 1])

@@ -21,6 +21,7 @@ Errors
 ------
 CheckpointError  -- a checkpoint or profile that cannot be read as it stands
 MemoryLimitError -- work refused by the pre-flight memory estimate
+UnnormalisedStateWarning -- the stored state was not normalised (it is profiled normalised)
 
 Heavy dependencies (scipy, numba, matplotlib, dask) are imported only when a
 function that needs them runs.
@@ -39,6 +40,7 @@ _LAZY = {
     "Profile": "bondscope._document",
     "load_profile": "bondscope._document",
     "entropy_measures": "bondscope._measure",
+    "UnnormalisedStateWarning": "bondscope._pipeline",
 }
 
 __all__ = ["CheckpointError", "MemoryLimitError", "__version__", *_LAZY]

@@ -6,7 +6,7 @@ from pathlib import Path
 import numpy as np
 
 from ._errors import CheckpointError
-from ._source import (AmplitudeSource, ChainSource, numeric_dtype, resolve_axes,
+from ._source import (AmplitudeSource, ChainSource, numeric_dtype, parse_axes, resolve_axes,
                       split_local_dims)
 
 __all__ = ["open_source", "scan", "Candidate"]
@@ -147,10 +147,12 @@ def scan(f, local_dim=None):
 
     Returns
     -------
-    list of Candidate
+    found : list of Candidate
         Chain families (a pattern whose members' bonds chain) and state-vector
         datasets (1-D of a length that splits into local dimensions, or N-D with
-        small axes).
+        small axes) outside any family.
+    broken : list of Candidate
+        Families of numbered rank-2/3 datasets whose bonds do not chain, with the reason.
     """
     paths = _datasets(f)
     patterns = {}
@@ -160,14 +162,13 @@ def scan(f, local_dim=None):
         for m in _NUMBER.finditer(p):
             pat = p[:m.start()] + "{site}" + p[m.end():]
             patterns.setdefault(pat, {})[int(m.group())] = p
-    found, members = [], set()
+    found, broken, members = [], [], set()
     for pat, hits in patterns.items():
         if len(hits) < 2:
             continue
         cand = _chain_candidate(f, pat, dict(sorted(hits.items())), None)
-        if cand.problem is None:
-            found.append(cand)
-            members.update(cand.datasets)
+        (broken if cand.problem else found).append(cand)
+        members.update(cand.datasets)
     for p in paths:
         if p in members:
             continue
@@ -186,7 +187,7 @@ def scan(f, local_dim=None):
         elif d.ndim < 2 or not all(2 <= n <= 16 for n in d.shape):
             continue
         found.append(Candidate("state-vector", p, [p]))
-    return found
+    return found, broken
 
 
 def _describe(cands):
@@ -238,6 +239,8 @@ def open_source(path, *, state=None, tensors=None, local_dim=None, axes=None,
     """
     if state is not None and tensors is not None:
         raise ValueError("give either a state dataset or a tensor pattern, not both")
+    if axes is not None:
+        parse_axes(axes)
     f = _open(path)
     try:
         src = _pick(f, Path(path), state, tensors, local_dim, axes, precision)
@@ -259,7 +262,11 @@ def _pick(f, path, state, tensors, local_dim, axes, precision):
             raise CheckpointError(cand.problem if cand.problem.startswith(str(f.filename))
                                   else f"{path}: {cand.problem}")
         return _chain_source(f, path, cand, precision)
-    cands = scan(f, local_dim)
+    cands, broken = scan(f, local_dim)
+    if not cands and broken:
+        problem = broken[0].problem
+        raise CheckpointError(f"{problem}; or name another layout with --state / --tensors"
+                              if problem.startswith(str(f.filename)) else f"{path}: {problem}")
     if not cands:
         raise CheckpointError(f"{path}: found no state-vector dataset and no chain of site "
                               "tensors; name the layout with --state DATASET or "

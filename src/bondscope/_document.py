@@ -28,8 +28,8 @@ FORMAT = "bondscope-profile"
 VERSION = 1
 H5_GROUP = "bondscope_profile"
 _COLUMNS = ("position", "bond_dimension", "schmidt_rank", "entropy", "resolution_floor",
-            "discarded_weight")
-_INT_COLUMNS = ("position", "bond_dimension", "schmidt_rank")
+            "kept", "discarded_weight")
+_INT_COLUMNS = ("position", "bond_dimension", "schmidt_rank", "kept")
 _SUFFIXES = {".json": "json", ".h5": "h5", ".hdf5": "h5", ".csv": "csv"}
 
 

@@ -204,7 +204,7 @@ def profile(source, *, state=None, tensors=None, local_dim=None, axes=None, reny
                    "schmidt_rank": m["schmidt_rank"], "entropy": m["entropy"],
                    "renyi": m["renyi"], "resolution_floor": floor}
             if truncating:
-                keep = kept_rank(s, bond_dim, weight_tol)
+                keep = min(kept_rank(s, bond_dim, weight_tol), m["schmidt_rank"])
                 cut["kept"] = keep
                 cut["discarded_weight"] = discarded_weight(s, keep)
                 bound += cut["discarded_weight"]

@@ -55,8 +55,9 @@ class BondStore:
         Bytes kept in memory before spilling.
     """
 
-    def __init__(self, scratch=None, budget=_STORE_BYTES):
-        self._mem, self._disk, self._used, self._budget = {}, {}, 0, budget
+    def __init__(self, scratch=None, budget=None):
+        self._mem, self._disk, self._used = {}, {}, 0
+        self._budget = _STORE_BYTES if budget is None else budget
         self._scratch, self._dir = scratch, None
 
     def put(self, key, matrix):

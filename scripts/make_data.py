@@ -1,0 +1,287 @@
+"""Write bondscope's demo checkpoints and test fixtures, deterministically.
+
+Regenerate everything that is committed (about a minute on two cores)::
+
+    python scripts/make_data.py
+
+Parts can be written alone with ``--only demo``, ``--only series`` or
+``--only fixtures``. Large checkpoints (not committed) are written on
+demand::
+
+    python scripts/make_data.py --large out/large            # L = 100, 200, 500
+    python scripts/make_data.py --large out/large --sizes 300
+
+What is written
+---------------
+data/demo.h5
+    The demo checkpoint: run "KP-0417" of the fictional Kestrel Point
+    quantum-simulation group, a 64-site open transverse-field Ising chain at
+    its critical field g = 1, found by two-site DMRG (`groundstate`) at bond
+    dimension 32. Site tensors ``/state/site_{n}`` (left, phys, right),
+    n = 0..63; run metadata as attributes of ``/`` and ``/state``.
+data/series/kp0417_chi{4,8,16,32}.h5
+    The same run at bond dimensions 4, 8, 16 and 32 (attribute ``bond_dim``),
+    for comparison and convergence studies.
+tests/fixtures/*.h5
+    Tiny files in several layouts, listed in `FIXTURES`. All but the AKLT file
+    hold the exact ground state of the open 6-site critical Ising chain (exact
+    diagonalisation, `reference.spin`), whose block entropies are
+    `reference.freefermion.ising_entropies(6, 1.0)`; local phase rotations in
+    the complex files leave the entropies unchanged.
+
+Files are byte-for-byte reproducible: fixed seeds, one BLAS thread (threaded
+reductions may change the last bits), no HDF5 timestamps.
+"""
+
+import os
+
+# one BLAS thread: reproducible sums and no oversubscription on small matrices
+for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+    os.environ.setdefault(_var, "1")
+
+import argparse  # noqa: E402
+import sys  # noqa: E402
+from pathlib import Path  # noqa: E402
+
+import h5py  # noqa: E402
+import numpy as np  # noqa: E402
+
+ROOT = Path(__file__).resolve().parent.parent
+sys.path.insert(0, str(ROOT / "tests"))
+
+import groundstate  # noqa: E402
+from reference import freefermion, spin, states  # noqa: E402
+
+DEMO_SITES = 64
+DEMO_FIELD = 1.0
+DEMO_BOND_DIM = 32
+SERIES_BOND_DIMS = (4, 8, 16, 32)
+LARGE_SIZES = (100, 200, 500)
+LARGE_BOND_DIM = 64
+FIXTURE_SITES = 6
+
+SCENARIO = {
+    "lab": "Kestrel Point quantum-simulation group (fictional)",
+    "run_id": "KP-0417",
+    "description": "calibration run of a Rydberg-dressed spin chain tuned to its critical "
+    "transverse field; ground state prepared numerically before the quench",
+    "model": "transverse-field Ising chain",
+    "hamiltonian": "H = -J sum_i X_i X_{i+1} - g sum_i Z_i (Pauli matrices)",
+    "boundary": "open",
+    "J": 1.0,
+    "method": "two-site DMRG (scripts/groundstate.py)",
+    "tensor_axes": "left,phys,right",
+}
+
+
+def _dataset(group, name, data, **kw):
+    return group.create_dataset(name, data=data, track_times=False, **kw)
+
+
+def _new_file(path):
+    path.parent.mkdir(parents=True, exist_ok=True)
+    return h5py.File(path, "w", track_order=False)
+
+
+def ising_run(L, g, bond_dim, seed=0):
+    """DMRG ground state of the open transverse-field Ising chain.
+
+    Parameters
+    ----------
+    L : int
+        Number of sites.
+    g : float
+        Transverse field.
+    bond_dim : int
+        Largest bond dimension.
+    seed : int
+        Start-state seed.
+
+    Returns
+    -------
+    groundstate.GroundState
+    """
+    return groundstate.two_site_ground_state(
+        groundstate.tfim_mpo(L, g), bond_dim, energy_tol=1e-10, seed=seed
+    )
+
+
+def write_run(path, run, L, g, bond_dim):
+    """Write one DMRG run as a checkpoint with ``/state/site_{n}`` tensors.
+
+    Parameters
+    ----------
+    path : Path
+        Output file.
+    run : groundstate.GroundState
+        The run to store.
+    L : int
+        Number of sites.
+    g : float
+        Transverse field.
+    bond_dim : int
+        Bond dimension asked of DMRG.
+    """
+    with _new_file(path) as f:
+        f.attrs.update(SCENARIO)
+        f.attrs.update(
+            {
+                "sites": L,
+                "g": g,
+                "bond_dim": bond_dim,
+                "energy": run.energy,
+                "energy_exact": freefermion.ising_ground_energy(L, g),
+                "sweep_energies": np.asarray(run.sweep_energies),
+                "max_discarded_weight": run.max_discarded,
+                "seed": 0,
+            }
+        )
+        grp = f.create_group("state")
+        grp.attrs["axes"] = "left,phys,right"
+        for n, A in enumerate(run.tensors):
+            _dataset(grp, f"site_{n}", A)
+
+
+def make_demo(data_dir, runs):
+    """Write ``data/demo.h5``; ``runs`` caches DMRG runs by bond dimension."""
+    run = runs.setdefault(DEMO_BOND_DIM, ising_run(DEMO_SITES, DEMO_FIELD, DEMO_BOND_DIM))
+    write_run(data_dir / "demo.h5", run, DEMO_SITES, DEMO_FIELD, DEMO_BOND_DIM)
+
+
+def make_series(data_dir, runs):
+    """Write ``data/series/kp0417_chi{D}.h5`` for each bond dimension D."""
+    for chi in SERIES_BOND_DIMS:
+        run = runs[chi] if chi in runs else ising_run(DEMO_SITES, DEMO_FIELD, chi)
+        write_run(data_dir / "series" / f"kp0417_chi{chi}.h5", run, DEMO_SITES, DEMO_FIELD, chi)
+
+
+def make_large(out_dir, sizes):
+    """Write large critical-Ising checkpoints (not committed)."""
+    for L in sizes:
+        run = ising_run(L, DEMO_FIELD, LARGE_BOND_DIM)
+        write_run(Path(out_dir) / f"ising_L{L}_chi{LARGE_BOND_DIM}.h5", run, L, DEMO_FIELD,
+                  LARGE_BOND_DIM)
+        print(f"L={L}: energy {run.energy:.12f}, max discarded {run.max_discarded:.2e}")
+
+
+def exact_chain(psi, dims):
+    """Exact left-canonical site tensors of a state vector (successive SVDs).
+
+    Parameters
+    ----------
+    psi : ndarray
+        State vector, site 0 most significant.
+    dims : sequence of int
+        Local dimensions.
+
+    Returns
+    -------
+    list of ndarray
+        Tensors (left, phys, right); no Schmidt value is dropped.
+    """
+    tensors = []
+    rest = psi.reshape(1, -1)
+    for d in dims[:-1]:
+        a = rest.shape[0]
+        U, S, Vh = np.linalg.svd(rest.reshape(a * d, -1), full_matrices=False)
+        tensors.append(U.reshape(a, d, -1))
+        rest = S[:, None] * Vh
+    tensors.append(rest.reshape(rest.shape[0], dims[-1], 1))
+    return tensors
+
+
+def _phased(tensors, rng):
+    """Apply a random diagonal phase on each site (a local unitary)."""
+    out = []
+    for A in tensors:
+        phases = np.exp(2j * np.pi * rng.random(A.shape[1]))
+        out.append(A * phases[None, :, None])
+    return out
+
+
+def _compound(array, fields, dtype):
+    ct = np.dtype([(fields[0], dtype), (fields[1], dtype)])
+    out = np.empty(array.shape, dtype=ct)
+    out[fields[0]] = array.real
+    out[fields[1]] = array.imag
+    return out
+
+
+REFERENCE_NOTE = "reference.freefermion.ising_entropies(6, 1.0): open critical Ising chain"
+
+# name -> (dataset pattern, description); `make_fixtures` writes each
+FIXTURES = {
+    "mps_basic.h5": ("/run/psi/T{site}", "rank-3 left,phys,right, numbered from 0, float64"),
+    "mps_permuted.h5": ("/mps/W{site}", "axes stored phys,right,left (attribute axes)"),
+    "mps_groups_one_based.h5": ("/chain/site_{site}/data", "one group per site, from 1, complex128"),
+    "mps_float32.h5": ("/tensors/A{site}", "float32"),
+    "mps_compound.h5": ("/psi/B{site}", "complex128 as compound (re, im)"),
+    "mps_compound_f32.h5": ("/psi/B{site}", "complex64 as compound (real, imag)"),
+    "mps_rank2_ends.h5": ("/run/psi/T{site}", "rank-2 ends: first (phys, right), last (left, phys)"),
+    "state_flat.h5": ("/wavefunction", "1-D state vector, float64, length 2**6"),
+    "state_nd.h5": ("/ground/psi", "N-D state vector (2,)*6, complex64"),
+    "aklt_edges.h5": ("/vbs/site{site}", "AKLT with spin-1/2 edges, local dims 2,3,3,3,3,2"),
+}
+
+
+def make_fixtures(fixture_dir):
+    """Write the tiny layout fixtures listed in `FIXTURES`."""
+    rng = np.random.default_rng(20260417)
+    _, psi = spin.ground_state(spin.tfim(FIXTURE_SITES, 1.0))
+    chain = exact_chain(psi, [2] * FIXTURE_SITES)
+    complex_chain = _phased(chain, rng)
+
+    def write(name, tensors, pattern, note=REFERENCE_NOTE, **attrs):
+        with _new_file(fixture_dir / name) as f:
+            f.attrs.update({"layout": FIXTURES[name][1], "reference": note, **attrs})
+            for n, A in enumerate(tensors, start=1 if "one_based" in name else 0):
+                path = pattern.format(site=n)
+                _dataset(f, path, A)
+
+    write("mps_basic.h5", chain, FIXTURES["mps_basic.h5"][0])
+    # stored order (phys, right, left) = transpose (1, 2, 0) of (left, phys, right)
+    write("mps_permuted.h5", [A.transpose(1, 2, 0) for A in chain],
+          FIXTURES["mps_permuted.h5"][0], axes="phys,right,left")
+    write("mps_groups_one_based.h5", complex_chain, FIXTURES["mps_groups_one_based.h5"][0])
+    write("mps_float32.h5", [A.astype(np.float32) for A in chain], FIXTURES["mps_float32.h5"][0])
+    write("mps_compound.h5", [_compound(A, ("re", "im"), np.float64) for A in complex_chain],
+          FIXTURES["mps_compound.h5"][0])
+    write("mps_compound_f32.h5",
+          [_compound(A, ("real", "imag"), np.float32) for A in complex_chain],
+          FIXTURES["mps_compound_f32.h5"][0])
+    write("mps_rank2_ends.h5", [chain[0][0]] + chain[1:-1] + [chain[-1][..., 0]],
+          FIXTURES["mps_rank2_ends.h5"][0])
+    with _new_file(fixture_dir / "state_flat.h5") as f:
+        f.attrs.update({"layout": FIXTURES["state_flat.h5"][1], "reference": REFERENCE_NOTE})
+        _dataset(f, "wavefunction", psi)
+    with _new_file(fixture_dir / "state_nd.h5") as f:
+        f.attrs.update({"layout": FIXTURES["state_nd.h5"][1], "reference": REFERENCE_NOTE})
+        _dataset(f, "ground/psi", states.to_vector(complex_chain).astype(np.complex64)
+                 .reshape((2,) * FIXTURE_SITES))
+    write("aklt_edges.h5", states.aklt(4), FIXTURES["aklt_edges.h5"][0],
+          note="AKLT valence-bond solid with edge spins: ln 2 at every cut")
+
+
+def main(argv=None):
+    """Command line: see the module docstring."""
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--only", choices=("demo", "series", "fixtures"))
+    parser.add_argument("--large", metavar="DIR", help="write large checkpoints to DIR")
+    parser.add_argument("--sizes", type=int, nargs="+", default=list(LARGE_SIZES),
+                        help="chain lengths for --large")
+    args = parser.parse_args(argv)
+    if args.large:
+        make_large(args.large, args.sizes)
+        return
+    data_dir = ROOT / "data"
+    runs = {}
+    if args.only in (None, "demo"):
+        make_demo(data_dir, runs)
+    if args.only in (None, "series"):
+        make_series(data_dir, runs)
+    if args.only in (None, "fixtures"):
+        make_fixtures(ROOT / "tests" / "fixtures")
+
+
+if __name__ == "__main__":
+    main()

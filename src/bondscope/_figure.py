@@ -1,0 +1,437 @@
+"""Figures of entanglement profiles (matplotlib, headless).
+
+Every public function takes *sources* -- profiles, saved profiles, checkpoints
+or batch results directories (see :func:`bondscope._gather.collect`) -- and
+returns a :class:`matplotlib.figure.Figure` built without pyplot, so nothing
+opens a window, no global figure state is touched, and notebook users can
+restyle the result.  :func:`plot` picks a figure by kind and can save it as
+PNG, SVG or PDF (by the output's suffix).
+
+Colours are the eight-colour palette of Okabe & Ito, "Color Universal Design"
+(2008), safe for the common colour-vision deficiencies; each curve also has its
+own marker so that figures read in greyscale.  Maps use matplotlib's
+"cividis" (Nuñez, Anderton & Renslow, PLoS ONE 13, e0199239 (2018)), made for
+readers with colour-vision deficiencies.
+
+Kinds
+-----
+entropy      -- S(l) per source with the central-charge fit and a residual panel
+spectrum     -- entanglement spectrum levels -ln lambda^2 at every cut
+budget       -- bond dimension needed per cut for several target errors
+heatmap      -- S(l, t) over a time series of checkpoints
+convergence  -- middle-cut entropy against discarded weight or 1/chi, extrapolated
+"""
+
+import math
+from contextlib import contextmanager
+from pathlib import Path
+
+import numpy as np
+
+from ._gather import collect, natural_key, same_base
+
+__all__ = ["OKABE_ITO", "KINDS", "plot", "save_figure", "entropy_figure", "spectrum_figure",
+           "budget_figure", "heatmap_figure", "convergence_figure", "entropy_unit"]
+
+# Okabe & Ito (2008), in the order curves take them; yellow last (weak on white)
+OKABE_ITO = {
+    "blue": "#0072B2",
+    "vermillion": "#D55E00",
+    "bluish green": "#009E73",
+    "reddish purple": "#CC79A7",
+    "orange": "#E69F00",
+    "sky blue": "#56B4E9",
+    "black": "#000000",
+    "yellow": "#F0E442",
+}
+_COLOURS = list(OKABE_ITO.values())
+_MARKERS = ("o", "s", "^", "D", "v", "P", "X", "h")
+_INK = "#222222"
+_FAINT = "#8a8a8a"
+_MAP = "cividis"
+_FORMATS = {".png": "png", ".svg": "svg", ".pdf": "pdf"}
+# metadata that would make saved files differ from run to run
+_STABLE_METADATA = {"png": {"Software": None}, "svg": {"Date": None},
+                    "pdf": {"CreationDate": None, "ModDate": None}}
+
+_RC = {
+    "font.size": 9.5,
+    "axes.titlesize": 10,
+    "axes.titleweight": "bold",
+    "axes.titlelocation": "left",
+    "axes.labelsize": 9.5,
+    "axes.edgecolor": _INK,
+    "axes.labelcolor": _INK,
+    "axes.linewidth": 0.8,
+    "axes.spines.top": False,
+    "axes.spines.right": False,
+    "axes.grid": True,
+    "grid.color": "#d9d9d9",
+    "grid.linestyle": (0, (1, 3)),
+    "grid.linewidth": 0.8,
+    "xtick.color": _INK,
+    "ytick.color": _INK,
+    "xtick.direction": "out",
+    "ytick.direction": "out",
+    "legend.frameon": False,
+    "legend.fontsize": 8.5,
+    "lines.linewidth": 1.4,
+    "lines.markersize": 4.5,
+    "svg.fonttype": "none",
+    "pdf.fonttype": 42,
+}
+
+
+@contextmanager
+def _style():
+    import matplotlib
+
+    with matplotlib.rc_context(_RC):
+        yield
+
+
+def _figure(width=6.4, height=4.2):
+    from matplotlib.figure import Figure
+
+    return Figure(figsize=(width, height), layout="constrained")
+
+
+def _look(i):
+    return dict(color=_COLOURS[i % 7], marker=_MARKERS[i % len(_MARKERS)])
+
+
+def entropy_unit(log_base):
+    """'nats', 'bits' or 'log base b' for a profile's logarithm base."""
+    if abs(log_base - math.e) < 1e-12:
+        return "nats"
+    if log_base == 2:
+        return "bits"
+    return f"log base {log_base:g}"
+
+
+def _cut_label(ax):
+    ax.set_xlabel("cut position l (sites left of the cut)")
+    ax.xaxis.get_major_locator().set_params(integer=True)
+
+
+def _title(fig, ax, title, default):
+    text = default if title is None else title
+    if text:
+        ax.set_title(text)
+    return fig
+
+
+# --- entropy --------------------------------------------------------------------------
+def entropy_figure(sources, *, boundary="open", renyi=(), fit=True, title=None, **options):
+    """S(l) against cut position, one curve per source, with the central-charge fit.
+
+    Parameters
+    ----------
+    sources : source or list of sources
+        Profiles, saved profiles, checkpoints or results directories.
+    boundary : {"open", "periodic"}
+        Boundary condition of the chain, for the fit.
+    renyi : sequence of str or float
+        Rényi orders to draw as well (dashed), e.g. ``("2", "inf")``.
+    fit : bool
+        Draw the central-charge fit (c and its error in the legend) and the
+        residual panel beneath.
+    title : str, optional
+        Figure title ("" for none).
+    **options
+        Profiling options for checkpoints (layout, ``base``).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        Axes 0 holds the curves; with ``fit`` axes 1 holds the residuals
+        S - S_fit.  Fitted values are in ``fig.bondscope_fits``: one dict per
+        source (``label``, ``c``, ``c_error``, ...).
+    """
+    from ._scaling import central_charge_fit
+
+    orders = [str(a) for a in renyi]
+    entries = collect(sources, renyi=orders or None, **options)
+    scales, base = same_base(entries)
+    unit = entropy_unit(base)
+    with _style():
+        fig = _figure(6.4, 5.0 if fit else 4.0)
+        if fit:
+            ax, res = fig.subplots(2, 1, sharex=True, height_ratios=(3, 1))
+        else:
+            ax, res = fig.subplots(), None
+        fits = []
+        for i, (entry, scale) in enumerate(zip(entries, scales)):
+            prof, look = entry.profile, _look(i)
+            x, s = prof.positions, prof.entropies * scale
+            label = entry.label
+            if fit:
+                result = central_charge_fit(prof, boundary=boundary)
+                fits.append({"label": entry.label, **result.to_dict()})
+                curve = result.curve(x) * scale
+                label = f"{entry.label}: c = {_pm(result.c, result.c_error)}"
+                ax.plot(x, curve, color=look["color"], lw=1.0, ls=(0, (4, 2)), zorder=3)
+                res.plot(x, s - curve, ls="none", ms=3.5, **look)
+            ax.plot(x, s, lw=0.9, label=label, **look)
+            for k, a in enumerate(orders):
+                ax.plot(x, prof.renyi(a) * scale, color=look["color"], lw=0.9,
+                        ls=(0, (1, 1.5)) if k % 2 else (0, (3, 1, 1, 1)),
+                        label=f"{entry.label}: S_{_order_text(a)}")
+        ax.set_ylabel(f"S(l) [{unit}]")
+        if fit:
+            ax.plot([], [], color=_FAINT, lw=1.0, ls=(0, (4, 2)),
+                    label=f"fit, {boundary} chain: {_law(boundary)}")
+            res.axhline(0.0, color=_FAINT, lw=0.8)
+            res.set_ylabel(f"S - fit [{unit}]")
+            _cut_label(res)
+        else:
+            _cut_label(ax)
+        ax.legend(loc="best")
+        fig.bondscope_fits = fits
+        return _title(fig, ax, title, "Entanglement entropy across the chain")
+
+
+def _pm(value, error):
+    """'0.501 ± 0.003' with the value rounded to the error's first digit (two if it is 1)."""
+    if error is None or not np.isfinite(error) or error <= 0:
+        return f"{value:.4g}"
+    digits = max(0, -int(math.floor(math.log10(error))) + (1 if f"{error:e}"[0] == "1" else 0))
+    return f"{value:.{digits}f} ± {error:.{digits}f}"
+
+
+def _law(boundary):
+    return ("S = (c/6) ln[(2N/π) sin(πl/N)] + s₀" if boundary == "open"
+            else "S = (c/3) ln[(N/π) sin(πl/N)] + s₀")
+
+
+def _order_text(order):
+    return "∞" if str(order).lower() == "inf" else str(order)
+
+
+# --- spectrum -------------------------------------------------------------------------
+def _levels(values, floor, tol):
+    """Distinct levels -ln p (p = lambda^2 above the floor) and how many coincide in each."""
+    lam = np.asarray(values, dtype=float)
+    lam = lam[lam > (floor if floor is not None and np.isfinite(floor) else 0.0)]
+    xi = np.sort(-np.log(lam**2))
+    if xi.size == 0:
+        return xi, np.zeros(0, dtype=int)
+    breaks = np.flatnonzero(np.diff(xi) > tol * np.maximum(1.0, np.abs(xi[1:]))) + 1
+    groups = np.split(xi, breaks)
+    return np.array([g.mean() for g in groups]), np.array([g.size for g in groups])
+
+
+def spectrum_figure(sources, *, tol=1e-6, max_level=None, title=None, **options):
+    """Entanglement spectrum: the levels -ln lambda^2 at every cut, one panel per source.
+
+    Only Schmidt values above each cut's ``resolution_floor`` are drawn.
+    Levels that coincide within ``tol`` (relative, floor 1 in absolute terms)
+    are drawn as one marker whose area grows with the degeneracy; on charts
+    of at most 24 cuts the degeneracy is also written beside the marker.
+
+    Parameters
+    ----------
+    sources : source or list of sources
+        Checkpoints are profiled with all Schmidt values; saved profiles must
+        hold them (``bondscope profile --spectrum``).
+    tol : float
+        Relative tolerance for levels to count as degenerate.
+    max_level : float, optional
+        Upper limit of the level axis.
+    title : str, optional
+    **options
+        Profiling options for checkpoints.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+
+    Raises
+    ------
+    CheckpointError
+        A saved profile without Schmidt values.
+    """
+    entries = collect(sources, spectrum=True, **options)
+    with _style():
+        fig = _figure(max(5.2, 3.4 * len(entries) + 1.6), 4.4)
+        axes = np.atleast_1d(fig.subplots(1, len(entries), sharey=True, squeeze=False)[0])
+        top = 0.0
+        for i, (ax, entry) in enumerate(zip(axes, entries)):
+            top = max(top, _spectrum_panel(ax, entry, _COLOURS[i % 7], tol))
+            ax.set_title(entry.label, fontweight="normal", fontsize=9)
+            _cut_label(ax)
+        axes[0].set_ylabel("level ξ = −ln λ²  (λ: Schmidt value)")
+        if max_level is not None:
+            axes[0].set_ylim(top=max_level)
+        else:
+            axes[0].set_ylim(bottom=-0.02 * top, top=1.04 * top)
+        _size_key(axes[-1])
+        if title is None:
+            title = "Entanglement spectrum per cut"
+        if title:
+            fig.suptitle(title, x=0.01, ha="left", fontsize=10, fontweight="bold")
+        return fig
+
+
+def _size(count):
+    return 14.0 * count
+
+
+def _spectrum_panel(ax, entry, colour, tol):
+    prof = entry.profile
+    floors = prof.column("resolution_floor")
+    cuts = prof.positions
+    annotate = len(cuts) <= 24
+    top = 0.0
+    for l, values, floor in zip(cuts, prof.spectra, floors):
+        xi, count = _levels(values, floor, tol)
+        if xi.size == 0:
+            continue
+        top = max(top, xi.max())
+        ax.scatter(np.full(xi.size, l), xi, s=_size(count), c=colour, alpha=0.85,
+                   linewidths=0.5, edgecolors="white", zorder=3)
+        if annotate:
+            for y, n in zip(xi[count > 1], count[count > 1]):
+                ax.annotate(f"{n}", (l, y), xytext=(5, 0), textcoords="offset points",
+                            va="center", fontsize=7, color=_INK)
+    return top
+
+
+def _size_key(ax):
+    handles = [ax.scatter([], [], s=_size(n), c=_FAINT, edgecolors="white") for n in (1, 2, 4)]
+    ax.legend(handles, ["1", "2", "4"], title="degeneracy", loc="upper right",
+              fontsize=7.5, title_fontsize=7.5, borderpad=0.2, labelspacing=0.9)
+
+
+# --- heatmap --------------------------------------------------------------------------
+def _edges(centres):
+    c = np.asarray(centres, dtype=float)
+    if c.size == 1:
+        return np.array([c[0] - 0.5, c[0] + 0.5])
+    mid = (c[1:] + c[:-1]) / 2
+    return np.concatenate([[2 * c[0] - mid[0]], mid, [2 * c[-1] - mid[-1]]])
+
+
+def heatmap_figure(sources, *, title=None, **options):
+    """S(l, t) over a time series of checkpoints as a colour map.
+
+    Rows are ordered by each source's ``time`` (a top-level profile field, a
+    summary column or a checkpoint attribute); when some source has no time
+    the rows are the sources in natural name order, numbered 0, 1, ...
+
+    Parameters
+    ----------
+    sources : list of sources
+        All of the same chain length.
+    title : str, optional
+    **options
+        Profiling options for checkpoints.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+
+    Raises
+    ------
+    ValueError
+        Sources of different chain lengths, or repeated times.
+    """
+    entries = collect(sources, **options)
+    sites = {e.profile.sites for e in entries}
+    if len(sites) > 1:
+        raise ValueError(f"a heatmap needs chains of one length; found {sorted(sites)} sites "
+                         f"across {len(entries)} sources")
+    timed = all(isinstance(e.meta.get("time"), (int, float)) for e in entries)
+    if timed:
+        entries.sort(key=lambda e: float(e.meta["time"]))
+        times = np.array([float(e.meta["time"]) for e in entries])
+        if np.any(np.diff(times) == 0):
+            raise ValueError(f"repeated times in the series: {times.tolist()}")
+    else:
+        entries.sort(key=lambda e: natural_key(e.label))
+        times = np.arange(len(entries), dtype=float)
+    scales, base = same_base(entries)
+    grid = np.array([e.profile.entropies * k for e, k in zip(entries, scales)])
+    with _style():
+        fig = _figure(6.4, 4.4)
+        ax = fig.subplots()
+        ax.grid(False)
+        mesh = ax.pcolormesh(_edges(entries[0].profile.positions), _edges(times), grid,
+                             cmap=_MAP, shading="flat", vmin=0.0)
+        bar = fig.colorbar(mesh, ax=ax, pad=0.02)
+        bar.set_label(f"S(l, t) [{entropy_unit(base)}]")
+        _cut_label(ax)
+        unit = entries[0].meta.get("time_unit")
+        if timed:
+            ax.set_ylabel(f"time t [{unit}]" if unit else "time t")
+        else:
+            ax.set_ylabel("checkpoint (name order)")
+            ax.set_yticks(times, [e.label for e in entries], fontsize=7.5)
+        return _title(fig, ax, title, "Entanglement entropy in time")
+
+
+# --- saving and dispatch --------------------------------------------------------------
+def save_figure(fig, output, *, dpi=150):
+    """Write a figure as PNG, SVG or PDF, chosen by the suffix of ``output``.
+
+    The file is written whole or not at all, and carries no timestamp, so the
+    same data give the same bytes.
+
+    Raises
+    ------
+    ValueError
+        A suffix other than .png, .svg or .pdf.
+    """
+    from ._document import atomic_write
+
+    path = Path(output)
+    fmt = _FORMATS.get(path.suffix.lower())
+    if fmt is None:
+        raise ValueError(f"{path}: cannot tell the figure format from {path.suffix or 'no'} "
+                         f"suffix; use one of {', '.join(_FORMATS)}")
+    atomic_write(path, lambda tmp: fig.savefig(tmp, format=fmt, dpi=dpi, facecolor="white",
+                                               metadata=_STABLE_METADATA[fmt]))
+    return path
+
+
+KINDS = {
+    "entropy": entropy_figure,
+    "spectrum": spectrum_figure,
+    "budget": budget_figure,
+    "heatmap": heatmap_figure,
+    "convergence": convergence_figure,
+}
+
+
+def plot(sources, kind="entropy", output=None, **options):
+    """Draw one kind of figure and optionally save it.
+
+    Parameters
+    ----------
+    sources : source or list of sources
+        Profiles, saved profiles, checkpoints or batch results directories.
+    kind : {"entropy", "spectrum", "budget", "heatmap", "convergence"}
+    output : str or Path, optional
+        Save as PNG, SVG or PDF by suffix.
+    **options
+        Keyword options of the chosen figure function (e.g. ``boundary``,
+        ``renyi``, ``targets``, ``against``) and profiling options for checkpoints.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+
+    Raises
+    ------
+    ValueError
+        An unknown kind, or an output suffix that is not .png, .svg or .pdf.
+    """
+    draw = KINDS.get(kind)
+    if draw is None:
+        raise ValueError(f"unknown figure kind {kind!r}; choose one of {', '.join(KINDS)}")
+    if output is not None and Path(output).suffix.lower() not in _FORMATS:
+        raise ValueError(f"{output}: use a .png, .svg or .pdf name for the figure")
+    fig = draw(sources, **options)
+    if output is not None:
+        save_figure(fig, output)
+    return fig
