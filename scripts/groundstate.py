@@ -36,6 +36,7 @@ __all__ = [
     "xx_mpo",
     "xxz_mpo",
     "two_site_ground_state",
+    "mpo_expectation",
     "GroundState",
 ]
 
@@ -54,9 +55,9 @@ Attributes
 tensors : list of ndarray
     Normalised site tensors (left, phys, right), boundary bonds of size 1.
 energy : float
-    Final variational energy.
+    <psi|H|psi> of the returned (truncated) state.
 sweep_energies : list of float
-    Energy after each full (right and back) sweep.
+    Last local (Lanczos) energy of each full right-and-back sweep.
 max_discarded : float
     Largest discarded weight of the final sweep.
 """
@@ -221,7 +222,8 @@ def _random_mps(dims, bond_dim, rng, dtype):
 
 
 def two_site_ground_state(
-    mpo, bond_dim, *, sweeps=20, energy_tol=1e-11, cutoff=1e-14, lanczos_tol=1e-12, seed=0
+    mpo, bond_dim, *, sweeps=20, energy_tol=1e-11, cutoff=1e-14, lanczos_tol=1e-12, seed=0,
+    warmup_dim=8,
 ):
     """Variational ground state of an MPO by two-site DMRG sweeps.
 
@@ -242,6 +244,10 @@ def two_site_ground_state(
         eigsh tolerance of the local problem.
     seed : int
         Seed of the random start state.
+    warmup_dim : int
+        Bond dimension of the first sweep, doubled each sweep up to
+        ``bond_dim``; cheap early sweeps leave Lanczos a good start vector.
+        Convergence is only tested at the full bond dimension.
 
     Returns
     -------
@@ -259,15 +265,17 @@ def two_site_ground_state(
 
     history = []
     energy = np.inf
-    for _ in range(sweeps):
+    for sweep in range(sweeps):
+        chi = min(bond_dim, warmup_dim * 2**sweep)
         worst = 0.0
         for direction in ("right", "left"):
             order = range(L - 1) if direction == "right" else range(L - 2, -1, -1)
             for i in order:
                 theta = np.tensordot(mps[i], mps[i + 1], axes=(2, 0))
-                op = _two_site_operator(Lenv[i], mpo[i], mpo[i + 1], Renv[i + 1], theta.shape, dtype)
+                op = _two_site_operator(Lenv[i], mpo[i], mpo[i + 1], Renv[i + 1], theta.shape,
+                                        dtype)
                 e, vec = _solve_local(op, theta, lanczos_tol)
-                A, S, B, disc = _split(vec.reshape(theta.shape), bond_dim, cutoff)
+                A, S, B, disc = _split(vec.reshape(theta.shape), chi, cutoff)
                 worst = max(worst, disc)
                 if direction == "right":
                     mps[i] = A
@@ -278,8 +286,30 @@ def two_site_ground_state(
                     mps[i + 1] = B
                     Renv[i] = _as_env(_right_env(Renv[i + 1], B, mpo[i + 1]))
         history.append(float(e))
-        converged = abs(energy - e) < energy_tol
+        converged = chi == bond_dim and abs(energy - e) < energy_tol
         energy = float(e)
         if converged:
             break
-    return GroundState(mps, energy, history, worst)
+    return GroundState(mps, mpo_expectation(mps, mpo), history, worst)
+
+
+def mpo_expectation(mps, mpo):
+    """<psi|H|psi> / <psi|psi> of site tensors and an MPO, by environment contraction.
+
+    Parameters
+    ----------
+    mps : list of ndarray
+        Site tensors (left, phys, right).
+    mpo : list of ndarray
+        MPO tensors (left, right, out, in).
+
+    Returns
+    -------
+    float
+    """
+    E = np.ones((1, 1, 1))
+    N = np.ones((1, 1))
+    for A, W in zip(mps, mpo):
+        E = _as_env(_left_env(E, A, W))
+        N = np.einsum("ab,asc,bsd->cd", N, A.conj(), A)
+    return float((E[0, 0, 0] / N[0, 0]).real)

@@ -12,6 +12,7 @@ inspect          -- what a checkpoint holds and what profiling it will cost, wit
 open_source      -- the validated source (chain of site tensors, or amplitudes) of a checkpoint
 Profile          -- the Profile document (entropies, spectra, to_json, save)
 load_profile     -- read a saved profile (.json, .h5, .csv)
+run_batch        -- profile many checkpoints into a results directory, resumably
 
 Measures
 --------
@@ -41,6 +42,7 @@ _LAZY = {
     "load_profile": "bondscope._document",
     "entropy_measures": "bondscope._measure",
     "UnnormalisedStateWarning": "bondscope._pipeline",
+    "run_batch": "bondscope._batch",
 }
 
 __all__ = ["CheckpointError", "MemoryLimitError", "__version__", *_LAZY]

@@ -22,7 +22,8 @@ def format_bytes(n):
 
 
 def available_memory():
-    """Bytes this process may still use: MemAvailable, capped by a cgroup limit if any."""
+    """Bytes this process may still use: MemAvailable, capped by a cgroup limit and by
+    the room left under an address-space limit (RLIMIT_AS), if any."""
     avail = None
     try:
         with open("/proc/meminfo") as f:
@@ -45,7 +46,24 @@ def available_memory():
                 avail = min(avail, int(text) - used)
         except (OSError, ValueError):
             continue
+    room = _address_space_room()
+    if room is not None:
+        avail = min(avail, room)
     return max(avail, 0)
+
+
+def _address_space_room():
+    """Bytes left under a soft RLIMIT_AS (None when unlimited or unknown)."""
+    try:
+        import resource
+
+        soft = resource.getrlimit(resource.RLIMIT_AS)[0]
+        if soft == resource.RLIM_INFINITY:
+            return None
+        with open("/proc/self/statm") as f:
+            return soft - int(f.read().split()[0]) * resource.getpagesize()
+    except (ImportError, OSError, ValueError):
+        return None
 
 
 def _cgroup_usage(limit_path):
@@ -90,26 +108,45 @@ def _flop_rate():
     return _RATE[0]
 
 
+def _rho_sizes(dims):
+    """Entries of the reduced density matrices the gram route forms, in the order formed:
+    the left middle one and its partial traces, then the right ones."""
+    from ._sweep import _middle
+
+    n, m = len(dims), _middle(dims)
+    left = [prod(dims[:pos]) ** 2 for pos in range(m, 0, -1)]
+    right = [prod(dims[pos:]) ** 2 for pos in range(m + 1, n)]
+    return left, right
+
+
 def estimate(src, route=None, truncating=False, spectra_kept=False):
     """Memory and work of profiling ``src`` (a ChainSource or AmplitudeSource).
 
     Notes
     -----
-    MPS: peak is about four copies of the largest site tensor (the tensor, its
-    product with a bond matrix, and two LAPACK copies) plus a few bond matrices
-    and the in-memory part of the bond store (at most 64 MiB); work sums
-    d chi_l chi_r (chi_l + chi_r) per site and chi^3 per bond SVD.
-    State vectors: the amplitudes twice (read and compute copies) plus the
-    largest reduced density matrix (gram) or a reshaped copy (svd).
+    MPS: two sweeps may run at once, each holding a site tensor as read (plus
+    the stored copy when it is converted or transposed), its product with a
+    bond matrix, and a few bond matrices; plus the in-memory part of the bond
+    store (at most 64 MiB); truncation tracking adds two tensor-sized blocks.
+    Work sums d chi_l chi_r (chi_l + chi_r) per site and chi^3 per bond SVD.
+    State vectors: the larger of the read (the amplitudes, plus the stored
+    array while it is converted) and the computation.  gram holds the state,
+    the middle reduced density matrix while it is diagonalised, and the next
+    matrix with its partial trace; svd the state and one reshaped copy.
+    Truncation tracking adds three state-sized arrays (the normalised copy, the
+    block being decomposed and its right singular vectors).  Checked against
+    measured peaks by ``scripts/bench.py``.
     """
     item = np.dtype(src.compute_dtype).itemsize
+    stored = np.dtype(src.dtype).itemsize
     cplx = 4.0 if np.dtype(src.compute_dtype).kind == "c" else 1.0
     if src.kind == "mps":
         shapes = src.shapes
         tensor = max(prod(s) for s in shapes) * item
+        raw = max(prod(s) for s in shapes) * stored
         bond = max(max(s[0], s[2]) for s in shapes) ** 2 * item
         store = min(sum(s[0] ** 2 for s in shapes) * item, 64 * 2**20)
-        memory = 4 * tensor + 6 * bond + store + (2 * tensor if truncating else 0)
+        memory = 2 * (2 * tensor + raw + 3 * bond) + store + (2 * tensor if truncating else 0)
         flops = sum(2 * 2 * s[0] * s[1] * s[2] * (s[0] + s[2]) for s in shapes)
         flops += sum(10 * s[2] ** 3 for s in shapes[:-1])
         flops *= 2 if truncating else 1
@@ -123,16 +160,19 @@ def estimate(src, route=None, truncating=False, spectra_kept=False):
         for d in dims[:-1]:
             left *= d
             best = min(best, max(left, total // left))
-        big = best * best * item
+        read = state + (total * stored if stored != item else 0)
         if route == "gram":
-            memory = 2 * state + big + big // 4
+            lefts, rights = _rho_sizes(dims)
+            rest = sorted(lefts[1:2] + rights[:1], reverse=True)
+            second = rest[0] if rest else 0
+            memory = max(read, state + (lefts[0] + second + second // 4) * item)
             flops = 2 * (2 * total * best) + 2 * 4 * best ** 3 / 3
         else:
-            memory = 3 * state
+            memory = max(read, 2 * state)
             flops = sum(4 * min(l, total // l) ** 2 * max(l, total // l)
                         for l in _left_dims(dims))
         if truncating:
-            memory += state
+            memory += 3 * state
             flops += 4 * total * best
         detail = {"state_bytes": state, "middle_matrix": [total // best, best]}
     return Estimate(memory, flops * cplx, detail)

@@ -30,8 +30,9 @@ import numpy as np
 
 from ._gather import collect, natural_key, same_base
 
-__all__ = ["OKABE_ITO", "KINDS", "plot", "save_figure", "entropy_figure", "spectrum_figure",
-           "budget_figure", "heatmap_figure", "convergence_figure", "entropy_unit"]
+__all__ = ["OKABE_ITO", "KINDS", "plot", "save_figure", "figure_bytes", "entropy_figure",
+           "spectrum_figure", "budget_figure", "heatmap_figure", "convergence_figure",
+           "entropy_unit"]
 
 # Okabe & Ito (2008), in the order curves take them; yellow last (weak on white)
 OKABE_ITO = {
@@ -96,6 +97,13 @@ def _figure(width=6.4, height=4.2):
     return Figure(figsize=(width, height), layout="constrained")
 
 
+_RENYI_DASHES = ((0, (3, 1, 1, 1)), (0, (1, 1.5)))
+
+
+def _marker_size(n_points):
+    return 4.5 if n_points <= 30 else 3.0
+
+
 def _look(i):
     return dict(color=_COLOURS[i % 7], marker=_MARKERS[i % len(_MARKERS)])
 
@@ -122,17 +130,18 @@ def _title(fig, ax, title, default):
 
 
 # --- entropy --------------------------------------------------------------------------
-def entropy_figure(sources, *, boundary="open", renyi=(), fit=True, title=None, **options):
+def entropy_figure(sources, *, boundary=None, renyi=(), fit=True, title=None, **options):
     """S(l) against cut position, one curve per source, with the central-charge fit.
 
     Parameters
     ----------
     sources : source or list of sources
         Profiles, saved profiles, checkpoints or results directories.
-    boundary : {"open", "periodic"}
-        Boundary condition of the chain, for the fit.
+    boundary : {"open", "periodic"}, optional
+        Boundary condition of the chain, for the fit; by default each source's
+        ``boundary`` (a checkpoint attribute or profile field), else "open".
     renyi : sequence of str or float
-        Rényi orders to draw as well (dashed), e.g. ``("2", "inf")``.
+        Rényi orders to draw as well (dotted and dash-dotted), e.g. ``("2", "inf")``.
     fit : bool
         Draw the central-charge fit (c and its error in the legend) and the
         residual panel beneath.
@@ -146,49 +155,69 @@ def entropy_figure(sources, *, boundary="open", renyi=(), fit=True, title=None, 
     matplotlib.figure.Figure
         Axes 0 holds the curves; with ``fit`` axes 1 holds the residuals
         S - S_fit.  Fitted values are in ``fig.bondscope_fits``: one dict per
-        source (``label``, ``c``, ``c_error``, ...).
-    """
-    from ._scaling import central_charge_fit
+        source (``label``, ``boundary``, ``c``, ``c_error``, ...).
 
+    Raises
+    ------
+    ValueError
+        A boundary other than "open" or "periodic".
+    KeyError
+        A Rényi order the profiles do not hold.
+    """
+    if boundary not in (None, "open", "periodic"):
+        raise ValueError(f"boundary must be 'open' or 'periodic', found {boundary!r}")
     orders = [str(a) for a in renyi]
     entries = collect(sources, renyi=orders or None, **options)
     scales, base = same_base(entries)
     unit = entropy_unit(base)
     with _style():
-        fig = _figure(6.4, 5.0 if fit else 4.0)
+        fig = _figure(9.0, 5.0 if fit else 4.0)
         if fit:
             ax, res = fig.subplots(2, 1, sharex=True, height_ratios=(3, 1))
         else:
             ax, res = fig.subplots(), None
-        fits = []
+        fits, laws = [], []
         for i, (entry, scale) in enumerate(zip(entries, scales)):
             prof, look = entry.profile, _look(i)
             x, s = prof.positions, prof.entropies * scale
             label = entry.label
             if fit:
-                result = central_charge_fit(prof, boundary=boundary)
-                fits.append({"label": entry.label, **result.to_dict()})
-                curve = result.curve(x) * scale
-                label = f"{entry.label}: c = {_pm(result.c, result.c_error)}"
+                kind = boundary or entry.meta.get("boundary") or "open"
+                result = _fit(prof, kind)
+                fits.append({"label": entry.label, "boundary": kind, **result})
+                curve = result["curve"] * scale
+                label = f"{entry.label}: c = {_pm(result['c'], result['c_error'])}"
                 ax.plot(x, curve, color=look["color"], lw=1.0, ls=(0, (4, 2)), zorder=3)
                 res.plot(x, s - curve, ls="none", ms=3.5, **look)
-            ax.plot(x, s, lw=0.9, label=label, **look)
+                laws += [kind] if kind not in laws else []
+            ax.plot(x, s, lw=0.9, label=label, ms=_marker_size(len(x)), **look)
             for k, a in enumerate(orders):
                 ax.plot(x, prof.renyi(a) * scale, color=look["color"], lw=0.9,
-                        ls=(0, (1, 1.5)) if k % 2 else (0, (3, 1, 1, 1)),
-                        label=f"{entry.label}: S_{_order_text(a)}")
+                        ls=_RENYI_DASHES[k % 2])
+        for k, a in enumerate(orders):
+            ax.plot([], [], color=_FAINT, lw=0.9, ls=_RENYI_DASHES[k % 2],
+                    label=f"Rényi $S_{{{_order_text(a)}}}$")
         ax.set_ylabel(f"S(l) [{unit}]")
         if fit:
-            ax.plot([], [], color=_FAINT, lw=1.0, ls=(0, (4, 2)),
-                    label=f"fit, {boundary} chain: {_law(boundary)}")
+            for kind in laws:
+                ax.plot([], [], color=_FAINT, lw=1.0, ls=(0, (4, 2)),
+                        label=f"fit, {kind} chain:\n{_law(kind)}")
             res.axhline(0.0, color=_FAINT, lw=0.8)
-            res.set_ylabel(f"S - fit [{unit}]")
+            res.set_ylabel(f"S − fit [{unit}]")
             _cut_label(res)
         else:
             _cut_label(ax)
-        ax.legend(loc="best")
+        ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0))
         fig.bondscope_fits = fits
         return _title(fig, ax, title, "Entanglement entropy across the chain")
+
+
+def _fit(prof, boundary):
+    """The analysis central-charge fit as a plain dict with the fitted curve at every cut."""
+    from ._scaling import central_charge_fit
+
+    result = central_charge_fit(prof, boundary=boundary)
+    return {"c": result.c, "c_error": result.c_error, "curve": result.curve(prof.positions)}
 
 
 def _pm(value, error):
@@ -205,7 +234,7 @@ def _law(boundary):
 
 
 def _order_text(order):
-    return "∞" if str(order).lower() == "inf" else str(order)
+    return r"\infty" if str(order).lower() == "inf" else str(order)
 
 
 # --- spectrum -------------------------------------------------------------------------
@@ -274,33 +303,31 @@ def spectrum_figure(sources, *, tol=1e-6, max_level=None, title=None, **options)
 
 
 def _size(count):
-    return 14.0 * count
+    return 20.0 * count
 
 
 def _spectrum_panel(ax, entry, colour, tol):
     prof = entry.profile
-    floors = prof.column("resolution_floor")
-    cuts = prof.positions
-    annotate = len(cuts) <= 24
-    top = 0.0
-    for l, values, floor in zip(cuts, prof.spectra, floors):
+    xs, ys, counts = [], [], []
+    for l, values, floor in zip(prof.positions, prof.spectra, prof.column("resolution_floor")):
         xi, count = _levels(values, floor, tol)
-        if xi.size == 0:
-            continue
-        top = max(top, xi.max())
-        ax.scatter(np.full(xi.size, l), xi, s=_size(count), c=colour, alpha=0.85,
-                   linewidths=0.5, edgecolors="white", zorder=3)
-        if annotate:
-            for y, n in zip(xi[count > 1], count[count > 1]):
-                ax.annotate(f"{n}", (l, y), xytext=(5, 0), textcoords="offset points",
-                            va="center", fontsize=7, color=_INK)
-    return top
+        xs.append(np.full(xi.size, l))
+        ys.append(xi)
+        counts.append(count)
+    x, y, n = (np.concatenate(v) if v else np.zeros(0) for v in (xs, ys, counts))
+    ax.scatter(x, y, s=_size(n), c=colour, alpha=0.85, linewidths=0.5, edgecolors="white",
+               zorder=3)
+    if len(prof.positions) <= 24:
+        for xv, yv, nv in zip(x[n > 1], y[n > 1], n[n > 1]):
+            ax.annotate(f"{int(nv)}", (xv, yv), xytext=(5, 0), textcoords="offset points",
+                        va="center", fontsize=7, color=_INK)
+    return float(y.max()) if y.size else 0.0
 
 
 def _size_key(ax):
     handles = [ax.scatter([], [], s=_size(n), c=_FAINT, edgecolors="white") for n in (1, 2, 4)]
-    ax.legend(handles, ["1", "2", "4"], title="degeneracy", loc="upper right",
-              fontsize=7.5, title_fontsize=7.5, borderpad=0.2, labelspacing=0.9)
+    ax.legend(handles, ["1", "2", "4"], title="degeneracy", loc="upper left",
+              bbox_to_anchor=(1.01, 1.0), fontsize=7.5, title_fontsize=7.5, labelspacing=1.0)
 
 
 # --- heatmap --------------------------------------------------------------------------
@@ -370,12 +397,206 @@ def heatmap_figure(sources, *, title=None, **options):
         return _title(fig, ax, title, "Entanglement entropy in time")
 
 
+# --- budget ---------------------------------------------------------------------------
+def _target_text(eps):
+    mant, exp = f"{eps:.0e}".split("e")
+    exp = int(exp)
+    return f"ε = 10$^{{{exp}}}$" if mant == "1" else f"ε = {mant}·10$^{{{exp}}}$"
+
+
+def budget_figure(sources, *, targets=(1e-4, 1e-6, 1e-8), title=None, **options):
+    """Bond dimension needed at each cut to meet target errors, beside the stored ones.
+
+    One panel per source.  For each target error the curve gives, per cut, the
+    smallest bond dimension the analysis budget allows (see
+    :func:`bondscope._budget.bond_budget`); the grey band is the bond
+    dimension stored in the checkpoint.
+
+    Parameters
+    ----------
+    sources : source or list of sources
+        Checkpoints are profiled with all Schmidt values; saved profiles must hold them.
+    targets : sequence of float
+        Target errors in (0, 1).
+    title : str, optional
+    **options
+        Profiling options for checkpoints.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+
+    Raises
+    ------
+    CheckpointError
+        A saved profile without Schmidt values.
+    ValueError
+        A target outside (0, 1).
+    """
+    from matplotlib.ticker import FuncFormatter
+
+    from ._budget import bond_budget
+
+    targets = sorted({float(t) for t in targets}, reverse=True)
+    bad = [t for t in targets if not 0 < t < 1]
+    if not targets or bad:
+        raise ValueError(f"target errors must lie in (0, 1), found {bad or 'none'}")
+    entries = collect(sources, spectrum=True, **options)
+    with _style():
+        fig = _figure(max(5.6, 3.8 * len(entries) + 1.8), 4.2)
+        axes = np.atleast_1d(fig.subplots(1, len(entries), sharey=True, squeeze=False)[0])
+        for ax, entry in zip(axes, entries):
+            prof = entry.profile
+            x = prof.positions
+            stored = prof.bond_dimensions
+            ax.fill_between(x, 1, stored, step="mid", color="#e3e3e3", lw=0)
+            ax.step(x, stored, where="mid", color=_FAINT, lw=1.2, label="stored χ")
+            for i, eps in enumerate(targets):
+                need = bond_budget(prof, eps)
+                ax.plot(x, need, lw=1.2, ms=_marker_size(len(x)), drawstyle="steps-mid",
+                        label=_target_text(eps), **_look(i))
+            ax.set_yscale("log", base=2)
+            ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:g}"))
+            ax.set_ylim(bottom=1)
+            ax.set_title(entry.label, fontweight="normal", fontsize=9)
+            _cut_label(ax)
+        axes[0].set_ylabel("bond dimension χ")
+        axes[-1].legend(title="target error", title_fontsize=8, loc="upper left",
+                        bbox_to_anchor=(1.01, 1.0))
+        if title is None:
+            title = "Bond dimension needed per cut"
+        if title:
+            fig.suptitle(title, x=0.01, ha="left", fontsize=10, fontweight="bold")
+        return fig
+
+
+# --- convergence ----------------------------------------------------------------------
+def _middle_entropy(entry, scale):
+    prof = entry.profile
+    pos = prof.positions
+    at = np.flatnonzero(pos == prof.sites // 2)
+    if at.size == 0:
+        raise ValueError(f"{entry.label}: no cut at the middle position {prof.sites // 2}")
+    return float(prof.entropies[at[0]]) * scale
+
+
+def _discarded(entry):
+    value = entry.meta.get("max_discarded_weight")
+    if value is None:
+        raise ValueError(f"{entry.label}: the run's discarded weight is unknown (no "
+                         "'max_discarded_weight' attribute in its checkpoint); plot against "
+                         "1/chi instead (--against bond)")
+    return float(value)
+
+
+def _inverse_bond(entry):
+    chi = entry.max_bond
+    if not chi:
+        raise ValueError(f"{entry.label}: no bond dimension known; use against='weight'")
+    return 1.0 / chi
+
+
+def convergence_figure(sources, *, against="weight", title=None, **options):
+    """Middle-cut entropy across a series against discarded weight or 1/χ, extrapolated.
+
+    Sources are grouped by their ``series`` (from a batch) and each group is
+    fitted by the analysis extrapolation (see
+    :func:`bondscope._comparison.extrapolate`), drawn as a line reaching the
+    axis at zero with the extrapolated value marked there.
+
+    Parameters
+    ----------
+    sources : list of sources
+        At least two per group.
+    against : {"weight", "bond"}
+        x axis: the largest discarded weight of each source, or 1/χ with χ
+        its largest bond dimension.
+    title : str, optional
+    **options
+        Profiling options for checkpoints.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        Extrapolated values are in ``fig.bondscope_limits`` (one dict per group).
+
+    Raises
+    ------
+    ValueError
+        Fewer than two sources in a group, or a source without the x quantity.
+    """
+    from ._comparison import extrapolate
+
+    measure = {"weight": _discarded, "bond": _inverse_bond}.get(against)
+    if measure is None:
+        raise ValueError(f"against must be 'weight' or 'bond', found {against!r}")
+    entries = collect(sources, **options)
+    scales, base = same_base(entries)
+    groups = {}
+    for entry, scale in zip(entries, scales):
+        groups.setdefault(entry.meta.get("series"), []).append((entry, scale))
+    xlabel = ("largest discarded weight ε" if against == "weight"
+              else "inverse bond dimension 1/χ")
+    limits = []
+    with _style():
+        fig = _figure(9.0, 4.0)
+        ax, zoom = fig.subplots(1, 2, sharey=True, width_ratios=(1.15, 1))
+        for i, (name, members) in enumerate(groups.items()):
+            if len(members) < 2:
+                raise ValueError(f"series {name or '(all sources)'}: convergence needs at "
+                                 f"least two sources, found {len(members)}")
+            x = np.array([measure(e) for e, _ in members])
+            y = np.array([_middle_entropy(e, k) for e, k in members])
+            fit = extrapolate(x, y)
+            look = _look(i)
+            grid = np.linspace(0.0, x.max() * 1.05, 50)
+            ax.plot(grid, fit.curve(grid), color=look["color"], lw=1.0, ls=(0, (4, 2)))
+            ax.plot(x, y, ls="none", label=name or "middle-cut entropy", **look)
+            ax.plot([0.0], [fit.value], marker="*", ms=12, mfc="white", mec=look["color"],
+                    mew=1.3, ls="none", clip_on=False,
+                    label=f"extrapolated: {_pm(fit.value, fit.error)}")
+            zoom.axhspan(fit.value - (fit.error or 0.0), fit.value + (fit.error or 0.0),
+                         color=look["color"], alpha=0.12, lw=0)
+            zoom.axhline(fit.value, color=look["color"], lw=0.9, ls=(0, (4, 2)))
+            zoom.plot(x, y, ls="-", lw=0.8, **look)
+            for (e, _), xv, yv in zip(members, x, y):
+                chi = e.max_bond
+                zoom.annotate(f"χ={chi}" if chi else e.label, (xv, yv), xytext=(0, 7),
+                              textcoords="offset points", ha="center", fontsize=7.5,
+                              color=_INK)
+            limits.append({"series": name, **fit.to_dict()})
+        ax.set_xlim(left=0.0)
+        ax.set_xlabel(xlabel)
+        ax.set_ylabel(f"S(N/2) [{entropy_unit(base)}]")
+        ax.legend(loc="best")
+        zoom.set_xscale("log")
+        zoom.set_xlabel(xlabel + " (log scale)")
+        zoom.set_title("the approach to the limit", fontweight="normal", fontsize=9)
+        fig.bondscope_limits = limits
+        return _title(fig, ax, title, "Convergence of the middle-cut entropy")
+
+
 # --- saving and dispatch --------------------------------------------------------------
+def figure_bytes(fig, fmt="png", *, dpi=150):
+    """The figure encoded as PNG, SVG or PDF, in bondscope's style and without timestamps."""
+    import io
+
+    buf = io.BytesIO()
+    with _style():
+        fig.savefig(buf, format=fmt, dpi=dpi, facecolor="white",
+                    metadata=_STABLE_METADATA[fmt])
+    return buf.getvalue()
+
+
 def save_figure(fig, output, *, dpi=150):
     """Write a figure as PNG, SVG or PDF, chosen by the suffix of ``output``.
 
     The file is written whole or not at all, and carries no timestamp, so the
     same data give the same bytes.
+
+    Returns
+    -------
+    Path
 
     Raises
     ------
@@ -389,9 +610,8 @@ def save_figure(fig, output, *, dpi=150):
     if fmt is None:
         raise ValueError(f"{path}: cannot tell the figure format from {path.suffix or 'no'} "
                          f"suffix; use one of {', '.join(_FORMATS)}")
-    atomic_write(path, lambda tmp: fig.savefig(tmp, format=fmt, dpi=dpi, facecolor="white",
-                                               metadata=_STABLE_METADATA[fmt]))
-    return path
+    data = figure_bytes(fig, fmt, dpi=dpi)
+    return atomic_write(path, lambda tmp: Path(tmp).write_bytes(data))
 
 
 KINDS = {

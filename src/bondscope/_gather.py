@@ -1,6 +1,6 @@
 """Resolve what a figure or report is asked to draw into labelled profiles.
 
-A *source* is a :class:`~bondscope.Profile`, a saved profile (.json, .csv, or
+A *source* is an :class:`Entry`, a :class:`~bondscope.Profile`, a saved profile (.json, .csv, or
 an .h5 results file), an HDF5 checkpoint (profiled on the spot), or a batch
 results directory (its summary lists the checkpoints; each ok row has a
 profile file).  Every source becomes one or more :class:`Entry` objects.
@@ -13,12 +13,15 @@ from pathlib import Path
 
 from ._errors import CheckpointError
 
-__all__ = ["Entry", "collect", "read_results", "natural_key", "same_base", "SPECTRUM_HINT"]
+__all__ = ["Entry", "collect", "read_results", "entries_of_rows", "row_labels", "natural_key",
+           "same_base", "SPECTRUM_HINT"]
 
 SPECTRUM_HINT = "rerun `bondscope profile CHECKPOINT --spectrum -o PROFILE`"
 
 # top-level profile fields, summary columns or checkpoint attributes read as metadata
-_META_KEYS = ("time", "time_unit", "bond_dim", "series")
+_META_KEYS = ("time", "time_unit", "bond_dim", "series", "boundary", "max_discarded_weight")
+# summary columns taken over (its max_discarded_weight is of the profiling truncation, not the run)
+_ROW_KEYS = ("time", "time_unit", "bond_dim", "series")
 
 
 class Entry:
@@ -32,7 +35,8 @@ class Entry:
     origin : str or None
         The file it came from.
     meta : dict
-        ``time``, ``time_unit``, ``bond_dim``, ``series`` where known.
+        ``time``, ``time_unit``, ``bond_dim``, ``series``, ``boundary`` and
+        ``max_discarded_weight`` where known.
     """
 
     __slots__ = ("label", "profile", "origin", "meta")
@@ -84,113 +88,104 @@ def _needs_spectra(entry, spectrum):
     return entry
 
 
+def _summary_files(directory):
+    whole = directory / "summary.json"
+    if whole.is_file():
+        return [whole]
+    return sorted(directory.glob("summary.shard-*-of-*.json"), key=natural_key)
+
+
 def read_results(directory):
-    """The rows and series of a batch results directory.
+    """The rows and series of a batch results directory (see :mod:`bondscope._batch`).
 
     Parameters
     ----------
     directory : str or Path
-        A directory written by the batch runner: ``summary.json`` (or
-        ``summary.csv``) with one row per checkpoint, optional ``series.json``.
+        Holds ``summary.json`` (or the ``summary.shard-I-of-N.json`` files of a
+        sharded run, merged in shard order), ``profiles/`` and, when grouping
+        was asked, ``series.json``.
 
     Returns
     -------
     rows : list of dict
-        One per checkpoint, in the summary's order, with at least ``checkpoint``,
-        ``status`` and, for ok rows, ``profile`` (an absolute path).
+        The summary rows in order; ``profile`` is made an absolute path and
+        ``ok`` tells whether the row has a result (status done or skipped).
     series : dict
-        Series name -> list of checkpoint names, in bond-dimension order when known.
+        Series name -> list of member rows, in the series file's order
+        (time, then bond dimension); built from the rows' ``series`` column
+        when there is no series file.
 
     Raises
     ------
     OSError
-        No summary file in the directory.
+        No summary in the directory.
     CheckpointError
-        A summary that is not a list of rows.
+        A summary that is not a bondscope batch summary.
     """
     directory = Path(directory)
-    summary = directory / "summary.json"
-    if summary.is_file():
-        with open(summary, encoding="utf-8") as f:
-            doc = json.load(f)
-        rows = doc.get("rows", doc.get("checkpoints")) if isinstance(doc, dict) else doc
-    elif (directory / "summary.csv").is_file():
-        import csv
-
-        with open(directory / "summary.csv", encoding="utf-8", newline="") as f:
-            rows = list(csv.DictReader(line for line in f if not line.startswith("#")))
-    else:
-        raise OSError(f"{directory}: no summary.json or summary.csv; not a batch results "
-                      "directory")
-    if not isinstance(rows, list) or not all(isinstance(r, dict) for r in rows):
-        raise CheckpointError(f"{summary}: expected a list of rows, one per checkpoint")
-    out = [_normal_row(directory, r) for r in rows]
-    return out, _read_series(directory, out)
+    files = _summary_files(directory)
+    if not files:
+        raise OSError(f"{directory}: no summary.json; not a batch results directory "
+                      "(write one with `bondscope batch`)")
+    rows = []
+    for path in files:
+        try:
+            doc = json.loads(path.read_text(encoding="utf-8"))
+        except ValueError as exc:
+            raise CheckpointError(f"{path}: not a JSON batch summary ({exc})") from None
+        if not isinstance(doc, dict) or not isinstance(doc.get("rows"), list):
+            raise CheckpointError(f"{path}: no 'rows' list; not a bondscope batch summary")
+        rows += [_normal_row(directory, r) for r in doc["rows"]]
+    by_profile = {r["profile"]: r for r in rows if r["profile"]}
+    series = {}
+    for path in sorted(directory.glob("series*.json"), key=natural_key):
+        doc = json.loads(path.read_text(encoding="utf-8"))
+        for name, members in doc.get("series", {}).items():
+            found = [by_profile.get(str(directory / m["profile"])) for m in members]
+            series.setdefault(str(name), []).extend(r for r in found if r is not None)
+    if not series:
+        for r in rows:
+            if r.get("series") is not None and r["ok"]:
+                series.setdefault(str(r["series"]), []).append(r)
+    return rows, series
 
 
 def _normal_row(directory, row):
     row = dict(row)
-    name = row.get("checkpoint") or row.get("path") or row.get("source") or "?"
-    row["checkpoint"] = str(name)
-    row["status"] = str(row.get("status") or ("ok" if row.get("profile") else "failed"))
-    if row.get("profile"):
-        path = Path(row["profile"])
-        row["profile"] = str(path if path.is_absolute() else directory / path)
+    row["source"] = str(row.get("source") or row.get("key") or "?")
+    row["ok"] = row.get("status") in ("done", "skipped") and bool(row.get("profile"))
+    row["profile"] = str(directory / row["profile"]) if row.get("profile") else None
     return row
 
 
-def _read_series(directory, rows):
-    path = directory / "series.json"
-    if path.is_file():
-        with open(path, encoding="utf-8") as f:
-            doc = json.load(f)
-        doc = doc.get("series", doc) if isinstance(doc, dict) else doc
-        if isinstance(doc, dict):
-            return {str(k): _members(v) for k, v in doc.items()}
-        if isinstance(doc, list):
-            return {str(s.get("name")): _members(s) for s in doc if isinstance(s, dict)}
-    series = {}
-    for r in rows:
-        if r.get("series"):
-            series.setdefault(str(r["series"]), []).append(r["checkpoint"])
-    return series
+def row_labels(rows):
+    """Legend labels for batch rows: the checkpoint's stem, or its key where stems repeat."""
+    stems = [Path(r["source"]).stem for r in rows]
+    return [s if stems.count(s) == 1 else r.get("key") or r["source"]
+            for s, r in zip(stems, rows)]
 
 
-def _members(value):
-    if isinstance(value, dict):
-        value = value.get("members", value.get("checkpoints", []))
-    return [str(m.get("checkpoint") if isinstance(m, dict) else m) for m in value]
-
-
-def _row_label(row):
-    return Path(row["checkpoint"].split(":")[0]).stem
-
-
-def _from_results(directory, spectrum):
+def entries_of_rows(rows, spectrum=False):
+    """Entries for the ok rows of a batch, with the summary's time and bond dimension."""
     from ._document import load_profile
 
-    rows, _ = read_results(directory)
-    ok = [r for r in rows if r["status"] == "ok" and r.get("profile")]
-    if not ok:
-        raise CheckpointError(f"{directory}: no checkpoint of this batch has a profile "
-                              f"({len(rows)} rows, none ok)")
+    ok = [r for r in rows if r["ok"]]
     entries = []
-    for r in ok:
+    for r, label in zip(ok, row_labels(ok)):
         prof = load_profile(r["profile"])
-        meta = _profile_meta(prof)
-        meta.update({k: _number(r[k]) for k in _META_KEYS if r.get(k) not in (None, "")})
-        entries.append(_needs_spectra(Entry(_row_label(r), prof, r["profile"], meta), spectrum))
+        meta = _checkpoint_meta(r["source"]) if Path(r["source"]).is_file() else {}
+        meta.update(_profile_meta(prof))
+        meta.update({k: r[k] for k in _ROW_KEYS if r.get(k) is not None})
+        entries.append(_needs_spectra(Entry(label, prof, r["profile"], meta), spectrum))
     return entries
 
 
-def _number(value):
-    if isinstance(value, str):
-        try:
-            number = float(value)
-        except ValueError:
-            return value
-        return int(number) if number.is_integer() else number
-    return value
+def _from_results(directory, spectrum):
+    rows, _ = read_results(directory)
+    if not any(r["ok"] for r in rows):
+        raise CheckpointError(f"{directory}: no checkpoint of this batch has a profile "
+                              f"({len(rows)} rows, all failed)")
+    return entries_of_rows(rows, spectrum)
 
 
 def collect(sources, *, spectrum=False, **options):
@@ -220,15 +215,20 @@ def collect(sources, *, spectrum=False, **options):
     from ._cli._common import is_profile_path
     from ._document import Profile, load_profile
 
-    if isinstance(sources, (str, Path, Profile)):
+    if isinstance(sources, (str, Path, Profile, Entry)):
         sources = [sources]
     if not sources:
         raise ValueError("no sources to draw: give at least one checkpoint, profile or "
                          "results directory")
     entries = []
     for i, src in enumerate(sources):
+        if isinstance(src, Entry):
+            entries.append(_needs_spectra(src, spectrum))
+            continue
         if isinstance(src, Profile):
-            label = Path(str(src.source or f"profile {i + 1}").split(":")[0]).stem
+            origin = str(src.source or "<")
+            label = f"profile {i + 1}" if origin.startswith("<") else \
+                Path(origin.split(":")[0]).stem
             entries.append(_needs_spectra(Entry(label, src, None, _profile_meta(src)),
                                           spectrum))
             continue

@@ -1,12 +1,21 @@
 """Sweep engine: Schmidt spectra at every cut, with truncation tracking.
 
 Kernels here trust their inputs: sources are validated at the boundary.
+
+Two lanes of linear algebra run side by side when the BLAS may use two or more
+threads (each lane then gets half of them): the two MPS sweeps, which are
+independent until their bond matrices meet, and, for state vectors, the largest
+Hermitian eigenproblem beside the rest of the work.  One BLAS thread means one
+lane, the plain sequential order.
 """
 
 import math
 import os
 import shutil
 import tempfile
+import threading
+from concurrent.futures import ThreadPoolExecutor
+from contextlib import contextmanager
 from math import prod
 
 import numpy as np
@@ -45,43 +54,50 @@ class SweepResult:
 
 
 class BondStore:
-    """Bond matrices keyed by cut, held in memory up to a budget, then spilled to disk.
+    """Bond matrices keyed by name, held in memory up to a budget, then spilled to disk.
 
     Parameters
     ----------
     scratch : str or None
         Directory for spilled matrices (a private subdirectory is made and removed).
-    budget : int
-        Bytes kept in memory before spilling.
+    budget : int, optional
+        Bytes kept in memory before spilling (default 64 MiB).
+
+    Notes
+    -----
+    Safe to share between threads: ``put`` and ``pop`` hold a lock.
     """
 
     def __init__(self, scratch=None, budget=None):
         self._mem, self._disk, self._used = {}, {}, 0
         self._budget = _STORE_BYTES if budget is None else budget
         self._scratch, self._dir = scratch, None
+        self._lock = threading.Lock()
 
     def put(self, key, matrix):
-        if self._used + matrix.nbytes <= self._budget:
-            self._mem[key] = matrix
-            self._used += matrix.nbytes
-            return
-        if self._dir is None:
-            if self._scratch is not None:
-                os.makedirs(self._scratch, exist_ok=True)
-            self._dir = tempfile.mkdtemp(prefix="bondscope-", dir=self._scratch)
-        path = os.path.join(self._dir, f"{key}.npy")
-        np.save(path, matrix)
-        self._disk[key] = path
+        with self._lock:
+            if self._used + matrix.nbytes <= self._budget:
+                self._mem[key] = matrix
+                self._used += matrix.nbytes
+                return
+            if self._dir is None:
+                if self._scratch is not None:
+                    os.makedirs(self._scratch, exist_ok=True)
+                self._dir = tempfile.mkdtemp(prefix="bondscope-", dir=self._scratch)
+            path = os.path.join(self._dir, f"{key}.npy")
+            np.save(path, matrix)
+            self._disk[key] = path
 
     def pop(self, key):
-        if key in self._mem:
-            m = self._mem.pop(key)
-            self._used -= m.nbytes
+        with self._lock:
+            if key in self._mem:
+                m = self._mem.pop(key)
+                self._used -= m.nbytes
+                return m
+            path = self._disk.pop(key)
+            m = np.load(path)
+            os.unlink(path)
             return m
-        path = self._disk.pop(key)
-        m = np.load(path)
-        os.unlink(path)
-        return m
 
     @property
     def spilled(self):
@@ -100,8 +116,32 @@ class BondStore:
         self.close()
 
 
+def _blas_threads():
+    """Threads the loaded BLAS may use right now (threadpoolctl), else the core count."""
+    from threadpoolctl import threadpool_info
+
+    counts = [lib["num_threads"] for lib in threadpool_info() if lib["user_api"] == "blas"]
+    return max(counts) if counts else (os.cpu_count() or 1)
+
+
+@contextmanager
+def _lanes():
+    """Yield how many lanes run at once (1 or 2); with 2, each gets half the BLAS threads."""
+    total = _blas_threads()
+    if total < 2:
+        yield 1
+        return
+    from threadpoolctl import threadpool_limits
+
+    with threadpool_limits(limits=total // 2, user_api="blas"):
+        yield 2
+
+
 def _r_factor(a):
-    """R of the economic QR of a 2-D array (a may be overwritten); shape (min(m, n), n)."""
+    """R of the economic QR of a 2-D array (a may be overwritten); shape (min(m, n), n).
+
+    A Fortran-ordered ``a`` reaches LAPACK without a copy.
+    """
     from scipy.linalg import qr
 
     return qr(a, mode="raw", overwrite_a=True, check_finite=False)[1]
@@ -111,6 +151,30 @@ def _svdvals(a):
     from scipy.linalg import svdvals
 
     return svdvals(a, overwrite_a=True, check_finite=False)
+
+
+def _lq_step(a, env):
+    """Bond matrix of the right-to-left sweep: A_i L_{i+1}, reshaped (left, d right), = L_i Q_i.
+
+    The product is C-ordered, so its transpose is Fortran-ordered and its QR
+    (whose R is L_i transposed) needs no copy.
+    """
+    m = (a.reshape(-1, a.shape[2]) @ env).reshape(a.shape[0], -1)
+    return _r_factor(m.T).T
+
+
+def _qr_step(r, a):
+    """Bond matrix of the left-to-right sweep: R_i A_i, reshaped (left d, right), = P R_{i+1}.
+
+    The product is written straight into Fortran order with its rows ordered
+    (phys, left) instead of (left, phys).  Permuting rows changes only the
+    isometry P, not R, so LAPACK gets the matrix without the copy a C-ordered
+    one would cost.
+    """
+    k, d, c = r.shape[0], a.shape[1], a.shape[2]
+    out = np.empty((c, d, k), dtype=np.result_type(r.dtype, a.dtype))
+    np.matmul(a.transpose(1, 2, 0), r.T, out=out.transpose(1, 0, 2))
+    return _r_factor(out.reshape(c, d * k).T)
 
 
 def _normalised(s, where):
@@ -132,6 +196,117 @@ def _truncation_step(block, bond_dim, weight_tol):
 def _infidelity(eps):
     """1 - prod(1 - eps_i), accurate for tiny eps."""
     return max(float(-np.expm1(np.sum(np.log1p(-np.minimum(eps, 1.0))))), 0.0)
+
+
+def _locked(tick):
+    """``tick`` callable from several threads (None stays a no-op)."""
+    if tick is None:
+        return lambda: None
+    lock = threading.Lock()
+
+    def call():
+        with lock:
+            tick()
+    return call
+
+
+def _sequential_chain(src, store, tick, bond_dim=None, weight_tol=None):
+    """Singular values of R_i L_i per cut, right-to-left sweep then left-to-right sweep.
+
+    With ``bond_dim`` or ``weight_tol``, the left-to-right sweep also compresses
+    the state; returns (raw values per cut, discarded weights per cut).
+    """
+    n = src.sites
+    track = bond_dim is not None or weight_tol is not None
+    env = np.ones((1, 1), dtype=src.compute_dtype)
+    for i in range(n - 1, 0, -1):
+        env = _lq_step(src.tensor(i), env)
+        store.put(f"L{i}", env)
+        tick()
+    raw, eps = [], []
+    r = w = np.ones((1, 1), dtype=src.compute_dtype)
+    for i in range(n - 1):
+        a = src.tensor(i)
+        env = store.pop(f"L{i + 1}")
+        if track:
+            block = (w @ a.reshape(a.shape[0], -1)).reshape(-1, a.shape[2])
+            u, e = _truncation_step(block @ env, bond_dim, weight_tol)
+            w = u.conj().T @ block
+            eps.append(e)
+        r = _qr_step(r, a)
+        raw.append(_svdvals(r @ env))
+        tick()
+    return raw, eps
+
+
+class _Rendezvous:
+    """Pairs the two sweeps' bond matrices by cut: the first to arrive waits in a store."""
+
+    def __init__(self, store):
+        self._store, self._lock, self._waiting = store, threading.Lock(), set()
+
+    def meet(self, cut, side, matrix):
+        """Leave ``matrix`` for cut ``cut``; return the other side's one if it is waiting."""
+        with self._lock:
+            if cut not in self._waiting:
+                self._waiting.add(cut)
+                self._store.put(f"{side}{cut}", matrix)
+                return None
+            self._waiting.discard(cut)
+            return self._store.pop(f"{'R' if side == 'L' else 'L'}{cut}")
+
+
+def _until_failure(job, stop):
+    """Run ``job``; on any failure tell the other lane to stop, then re-raise."""
+    try:
+        job()
+    except BaseException:
+        stop.set()
+        raise
+
+
+def _concurrent_chain(src, store, tick):
+    """The two sweeps of :func:`_sequential_chain` run side by side, one per thread.
+
+    Neither sweep needs the other's results, so both start at once, the
+    right-to-left one from the last site and the left-to-right one from the
+    first.  Each cut's values are taken by whichever sweep reaches that cut
+    second; the first one's bond matrix waits in the store.  Each thread does
+    one sweep and about half of the bond SVDs.
+    """
+    n = src.sites
+    raw = [None] * (n - 1)
+    meet = _Rendezvous(store).meet
+    stop = threading.Event()
+    one = np.ones((1, 1), dtype=src.compute_dtype)
+
+    def leftward():
+        env = one
+        for i in range(n - 1, 0, -1):
+            if stop.is_set():
+                return
+            env = _lq_step(src.tensor(i), env)
+            waiting = meet(i, "L", env)
+            if waiting is not None:
+                raw[i - 1] = _svdvals(waiting @ env)
+            tick()
+
+    def rightward():
+        r = one
+        for i in range(n - 1):
+            if stop.is_set():
+                return
+            r = _qr_step(r, src.tensor(i))
+            waiting = meet(i + 1, "R", r)
+            if waiting is not None:
+                raw[i] = _svdvals(r @ waiting)
+            tick()
+
+    with ThreadPoolExecutor(1, thread_name_prefix="bondscope-sweep") as pool:
+        other = pool.submit(_until_failure, leftward, stop)
+        _until_failure(rightward, stop)
+        other.result()
+    return raw
 
 
 def chain_spectra(src, *, bond_dim=None, weight_tol=None, scratch=None, tick=None):
@@ -163,10 +338,18 @@ def chain_spectra(src, *, bond_dim=None, weight_tol=None, scratch=None, tick=Non
     is orthogonal, hence backward stable: values are resolved to about
     eps * chi * lambda_max.
 
-    Held in memory: one site tensor, its reshaped product (both O(d chi^2)),
-    and a few chi x chi bond matrices; the L_i wait in a :class:`BondStore`
-    that spills to ``scratch`` past 64 MiB.  Each tensor is read twice.
-    Cost O(N d chi^3); with truncation a further SVD per site.
+    Work per site: two products with a bond matrix, two QR factorisations and
+    one values-only SVD of a chi x chi matrix; O(N d chi^3) in all.  Every
+    factorisation gets its input in Fortran order without a copy.  When the
+    BLAS may use two or more threads the two sweeps run at once in two threads
+    (each with half the BLAS threads), since neither needs the other's results;
+    each cut's SVD is done by the sweep that reaches the cut second.  With
+    truncation tracking, or one BLAS thread, they run one after the other.
+
+    Memory: per running sweep one site tensor and its product with a bond
+    matrix (O(d chi^2) each), plus the bond matrices waiting for their partner
+    in a :class:`BondStore`, which spills to ``scratch`` past 64 MiB; so the
+    peak does not grow with N.  Each tensor is read twice, once per sweep.
 
     Successive truncation keeps, at each cut from the left, the leading
     Schmidt vectors of the already-truncated state; its fidelity with the
@@ -180,38 +363,19 @@ def chain_spectra(src, *, bond_dim=None, weight_tol=None, scratch=None, tick=Non
     G. Vidal, Phys. Rev. Lett. 91, 147902 (2003) -- Schmidt decompositions along
     a chain from successive factorisations.
     """
-    n = src.sites
     track = bond_dim is not None or weight_tol is not None
-    with BondStore(scratch) as store:
-        env = np.ones((1, 1), dtype=src.compute_dtype)
-        for i in range(n - 1, 0, -1):
-            a = src.tensor(i)
-            left = a.shape[0]
-            m = (a.reshape(-1, a.shape[2]) @ env).reshape(left, -1)
-            env = _r_factor(m.T).T
-            store.put(i, env)
-            if tick:
-                tick()
-        spectra, floors, eps, norm = [], [], [], None
-        r = np.ones((1, 1), dtype=src.compute_dtype)
-        w = r
-        for i in range(n - 1):
-            a = src.tensor(i)
-            a2 = a.reshape(a.shape[0], -1)
-            env = store.pop(i + 1)
-            m = (r @ a2).reshape(-1, a.shape[2])
-            if track:
-                block = (w @ a2).reshape(-1, a.shape[2])
-                u, e = _truncation_step(block @ env, bond_dim, weight_tol)
-                w = u.conj().T @ block
-                eps.append(e)
-            r = _r_factor(m)
-            s, total = _normalised(_svdvals(r @ env), src.name)
-            norm = total if norm is None else norm
-            spectra.append(s)
-            floors.append(resolution_floor(s, "svd", max(s.size, 1) * a.shape[1]))
-            if tick:
-                tick()
+    tick = _locked(tick)
+    with BondStore(scratch) as store, _lanes() as lanes:
+        if track or lanes < 2:
+            raw, eps = _sequential_chain(src, store, tick, bond_dim, weight_tol)
+        else:
+            raw, eps = _concurrent_chain(src, store, tick), []
+    spectra, floors, norm = [], [], None
+    for i, s in enumerate(raw):
+        s, total = _normalised(s, src.name)
+        norm = total if norm is None else norm
+        spectra.append(s)
+        floors.append(resolution_floor(s, "svd", max(s.size, 1) * src.shapes[i][1]))
     return SweepResult(spectra, floors, norm, "qr-sweep", _infidelity(eps) if track else None)
 
 
@@ -234,11 +398,12 @@ def _middle(dims):
     return m
 
 
-def _gram(mat, side):
-    """Reduced density matrix of one side of ``mat``, as a C-ordered array whose
-    lower triangle is valid (BLAS rank-k update; the conjugate, same spectrum).
+def _gram(mat, side, alpha):
+    """alpha times the reduced density matrix of one side of ``mat``, as a C-ordered
+    array whose lower triangle is valid (BLAS rank-k update; the conjugate, same spectrum).
 
     ``side="left"``: M M^H (rows); ``side="right"``: M^T conj(M) (columns).
+    ``mat`` is C-ordered, so ``mat.T`` reaches BLAS without a copy.
     """
     from scipy.linalg import blas
 
@@ -248,7 +413,7 @@ def _gram(mat, side):
         trans = 2 if name == "herk" else 1
     else:
         trans = 0
-    return rank_k(1.0, mat.T, trans=trans, lower=0).T
+    return rank_k(alpha, mat.T, trans=trans, lower=0).T
 
 
 def _eig_spectrum(low, where):
@@ -259,30 +424,45 @@ def _eig_spectrum(low, where):
     return _normalised(np.sqrt(np.clip(w[::-1], 0.0, None)), where)[0]
 
 
-def _gram_spectra(psi, dims, where):
+def _gram_spectra(psi, dims, where, scale, lanes):
     """All cuts from the two reduced density matrices at the middle and their partial traces.
 
     Partial traces keep the valid triangle: tracing a factor out of a matrix whose
     lower triangle is correct gives a matrix whose lower triangle is correct.
+    With two lanes the largest eigenproblem (the middle cut's) runs in a second
+    thread beside all the rest.  The next partial trace is always taken before a
+    matrix goes to the eigensolver, which destroys it, so at most three reduced
+    density matrices are alive at once.
     """
     n, total, m = len(dims), prod(dims), _middle(dims)
     spectra, sizes = [None] * (n - 1), [0] * (n - 1)
-    left = prod(dims[:m])
-    rho = _gram(psi.reshape(left, total // left), "left")
-    for pos in range(m, 0, -1):
-        dim, d = prod(dims[:pos]), dims[pos - 1]
-        nxt = np.einsum("axbx->ab", rho.reshape(dim // d, d, dim // d, d)) if pos > 1 else None
-        spectra[pos - 1], sizes[pos - 1] = _eig_spectrum(rho, where), dim
-        rho = nxt
-    if m < n - 1:
-        right = prod(dims[m + 1:])
-        rho = _gram(psi.reshape(total // right, right), "right")
-        for pos in range(m + 1, n):
-            dim, d = prod(dims[pos:]), dims[pos]
-            nxt = np.einsum("xaxb->ab", rho.reshape(d, dim // d, d, dim // d)) \
-                if pos < n - 1 else None
-            spectra[pos - 1], sizes[pos - 1] = _eig_spectrum(rho, where), dim
-            rho = nxt
+    pool = ThreadPoolExecutor(1, thread_name_prefix="bondscope-eig") if lanes > 1 else None
+    try:
+        left = prod(dims[:m])
+        rho = _gram(psi.reshape(left, total // left), "left", scale)
+        for pos in range(m, 0, -1):
+            dim, d = prod(dims[:pos]), dims[pos - 1]
+            nxt = np.einsum("axbx->ab", rho.reshape(dim // d, d, dim // d, d)) \
+                if pos > 1 else None
+            if pos == m and pool is not None:
+                middle = pool.submit(_eig_spectrum, rho, where)
+            else:
+                spectra[pos - 1] = _eig_spectrum(rho, where)
+            sizes[pos - 1], rho = dim, nxt
+        if m < n - 1:
+            right = prod(dims[m + 1:])
+            rho = _gram(psi.reshape(total // right, right), "right", scale)
+            for pos in range(m + 1, n):
+                dim, d = prod(dims[pos:]), dims[pos]
+                nxt = np.einsum("xaxb->ab", rho.reshape(d, dim // d, d, dim // d)) \
+                    if pos < n - 1 else None
+                spectra[pos - 1], sizes[pos - 1] = _eig_spectrum(rho, where), dim
+                rho = nxt
+        if pool is not None:
+            spectra[m - 1] = middle.result()
+    finally:
+        if pool is not None:
+            pool.shutdown()
     return spectra, sizes
 
 
@@ -339,11 +519,16 @@ def amplitude_spectra(src, *, route="auto", bond_dim=None, weight_tol=None, tick
 
     Notes
     -----
-    Memory: the amplitudes, plus for gram the two middle reduced density
-    matrices (each about the size of the state for an even split) held one at a
-    time; for svd one reshaped copy of the state.  Cost for D amplitudes in an
-    even split: gram O(D^{3/2}), svd O(D^{3/2}) per cut near the middle with a
-    larger constant.
+    The amplitudes are never copied for normalisation: the norm scales the
+    reduced density matrices (gram) or the values (svd).  Memory for D
+    amplitudes of the compute dtype, in units of the state's size: gram holds
+    the state, the left middle reduced density matrix (about 1 for an even
+    split) while it is diagonalised, and the next two partial traces (1/4 and
+    1/16), about 2.3 in all; svd holds the state and one reshaped copy, 2.
+    Cost for an even split: gram is two rank-k updates, O(D^{3/2}), and one
+    Hermitian eigenproblem of size sqrt(D) plus smaller ones (the middle one
+    runs in a second thread beside the rest when the BLAS may use two or more
+    threads); svd is a values-only SVD of the same size per cut near the middle.
 
     References
     ----------
@@ -352,9 +537,12 @@ def amplitude_spectra(src, *, route="auto", bond_dim=None, weight_tol=None, tick
     """
     psi = src.amplitudes()
     route = choose_route(psi.size, route)
-    psi, norm = _normalised(psi, src.name)
+    norm = math.sqrt(float(np.vdot(psi, psi).real))
+    if not norm > 0:
+        raise CheckpointError(f"{src.name}: the state has zero norm")
     if route == "gram":
-        spectra, sizes = _gram_spectra(psi, src.local_dims, src.name)
+        with _lanes() as lanes:
+            spectra, sizes = _gram_spectra(psi, src.local_dims, src.name, 1.0 / norm**2, lanes)
     else:
         spectra, sizes = _svd_spectra(psi, src.local_dims, src.name)
     floors = [resolution_floor(s, route, n) for s, n in zip(spectra, sizes)]

@@ -28,6 +28,8 @@ from scipy.special import polygamma
 
 __all__ = [
     "to_vector",
+    "from_vector",
+    "overlap",
     "aklt",
     "ghz",
     "w_state",
@@ -57,6 +59,32 @@ def to_vector(tensors):
     for A in tensors:
         psi = np.tensordot(psi, A, axes=(1, 0)).reshape(-1, A.shape[2])
     return psi[:, 0]
+
+
+def from_vector(psi, dims):
+    """Exact left-canonical site tensors of a state vector (successive SVDs).
+
+    Parameters
+    ----------
+    psi : ndarray
+        State vector, site 0 most significant.
+    dims : sequence of int
+        Local dimensions.
+
+    Returns
+    -------
+    list of ndarray
+        Tensors (left, phys, right); no Schmidt value is dropped.
+    """
+    tensors = []
+    rest = np.asarray(psi).reshape(1, -1)
+    for d in dims[:-1]:
+        a = rest.shape[0]
+        U, S, Vh = np.linalg.svd(rest.reshape(a * d, -1), full_matrices=False)
+        tensors.append(U.reshape(a, d, -1))
+        rest = S[:, None] * Vh
+    tensors.append(rest.reshape(rest.shape[0], dims[-1], 1))
+    return tensors
 
 
 def aklt(L, edge_spins=True):
@@ -91,9 +119,26 @@ def aklt(L, edge_spins=True):
     tensors = [bulk.copy() for _ in range(L)]
     tensors[0] = np.einsum("a,asb->sb", e0, bulk)[None]
     tensors[-1] = np.einsum("asb,b->as", bulk, e0)[..., None]
-    norm = np.linalg.norm(to_vector(tensors))
-    tensors[0] = tensors[0] / norm
+    tensors[0] = tensors[0] / np.sqrt(overlap(tensors, tensors).real)
     return tensors
+
+
+def overlap(bra, ket):
+    """<bra|ket> of two chains by transfer-matrix contraction (no state vector).
+
+    Parameters
+    ----------
+    bra, ket : list of ndarray
+        Site tensors (left, phys, right) with equal physical dimensions.
+
+    Returns
+    -------
+    complex
+    """
+    E = np.ones((1, 1))
+    for A, B in zip(bra, ket):
+        E = np.einsum("ab,asc,bsd->cd", E, A.conj(), B)
+    return complex(E[0, 0])
 
 
 def ghz(N, d=2):

@@ -84,6 +84,9 @@ def add_measure_arguments(p):
                         "(resolves the small Schmidt values), or auto (default)")
     g.add_argument("--accurate", action="store_const", dest="route", const="svd",
                    help="same as --route svd")
+    g.add_argument("--precision", choices=("promote", "stored"), default="promote",
+                   help="single-precision checkpoints: compute in double (promote, default) "
+                        "or as stored (half the memory, floors at float32 eps)")
     g = p.add_argument_group("resources")
     g.add_argument("--max-memory", metavar="SIZE", type=parse_size,
                    help="refuse work whose estimate exceeds SIZE (default: available memory)")
@@ -102,7 +105,7 @@ def measure_options(args):
     spectrum = False if args.spectrum is False else _spectrum(args.spectrum)
     return dict(renyi=args.renyi, base=args.base, spectrum=spectrum, bond_dim=args.bond_dim,
                 weight_tol=args.weight_tol, route=args.route, max_memory=args.max_memory,
-                scratch=args.scratch, threads=args.threads)
+                scratch=args.scratch, threads=args.threads, precision=args.precision)
 
 
 def is_profile_path(path):
