@@ -514,12 +514,23 @@ def _profile_one(task):
     return {"key": task["key"], "status": "done", "attrs": attrs, **_measures(doc)}
 
 
-def _warm():
-    """Worker start-up: import what profiling needs, so task times exclude it."""
+def _warm(parent):
+    """Worker start-up: import what profiling needs, so task times exclude it, and
+    exit when the batch process ``parent`` is gone (killed), not linger as an orphan."""
+    import threading
+
     import h5py  # noqa: F401
     import scipy.linalg  # noqa: F401
 
     from . import _pipeline, _sweep  # noqa: F401
+
+    threading.Thread(target=_watch, args=(parent,), daemon=True).start()
+
+
+def _watch(parent):
+    while os.getppid() == parent:
+        time.sleep(0.5)
+    os._exit(1)
 
 
 def _failure(task, error, attrs=None, seconds=None):
@@ -549,7 +560,7 @@ def _local_results(tasks, workers):
     while queue:
         suspects, broken = [], False
         with ProcessPoolExecutor(max_workers=min(workers, len(queue)), mp_context=context,
-                                 initializer=_warm) as pool:
+                                 initializer=_warm, initargs=(os.getpid(),)) as pool:
             running = {}
             while queue or running:
                 while queue and not broken and len(running) < workers:
@@ -583,7 +594,8 @@ def _alone(task, context):
     from concurrent.futures import ProcessPoolExecutor
     from concurrent.futures.process import BrokenProcessPool
 
-    with ProcessPoolExecutor(max_workers=1, mp_context=context, initializer=_warm) as pool:
+    with ProcessPoolExecutor(max_workers=1, mp_context=context, initializer=_warm,
+                             initargs=(os.getpid(),)) as pool:
         try:
             yield pool.submit(_profile_one, task).result()
         except BrokenProcessPool:

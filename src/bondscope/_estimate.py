@@ -160,15 +160,18 @@ def estimate(src, route=None, truncating=False, spectra_kept=False):
         for d in dims[:-1]:
             left *= d
             best = min(best, max(left, total // left))
-        read = state + (total * stored if stored != item else 0)
+        # the read: the amplitudes, the stored array while it is converted, and the
+        # NaN/Inf check's boolean mask
+        read = state + (total * stored if stored != item else 0) + total
+        work = 128 * best * item        # LAPACK workspace and the values, O(n)
         if route == "gram":
             lefts, rights = _rho_sizes(dims)
             rest = sorted(lefts[1:2] + rights[:1], reverse=True)
             second = rest[0] if rest else 0
-            memory = max(read, state + (lefts[0] + second + second // 4) * item)
+            memory = max(read, state + (lefts[0] + second + second // 4) * item + work)
             flops = 2 * (2 * total * best) + 2 * 4 * best ** 3 / 3
         else:
-            memory = max(read, 2 * state)
+            memory = max(read, 2 * state + work)
             flops = sum(4 * min(l, total // l) ** 2 * max(l, total // l)
                         for l in _left_dims(dims))
         if truncating:

@@ -15,8 +15,10 @@ from ._measure import discarded_weight, entropy_measures, kept_rank
 
 __all__ = ["profile", "inspect", "open_any", "UnnormalisedStateWarning"]
 
-# Relative deviation of the norm from 1 above which the user is told.
+# Relative deviation of the norm from 1 above which the user is told, and its
+# floor in units of the stored precision's eps (a float32 state is normalised to ~1e-7).
 _NORM_TOLERANCE = 1e-8
+_NORM_EPS_UNITS = 100
 
 
 class UnnormalisedStateWarning(UserWarning):
@@ -119,7 +121,8 @@ def profile(source, *, state=None, tensors=None, local_dim=None, axes=None, reny
     base : "e" or float
         Logarithm base of all entropies (2 for bits).
     spectrum : None, True or int
-        Store all Schmidt values per cut (True) or the K largest (int).
+        Store the Schmidt values above each cut's resolution floor (True), or
+        the K largest of them (int).
     bond_dim, weight_tol : int, float, optional
         Truncation to report: per cut the discarded weight of truncating that
         cut alone; for the state the exact infidelity of successive truncation
@@ -187,7 +190,8 @@ def profile(source, *, state=None, tensors=None, local_dim=None, axes=None, reny
                 result = amplitude_spectra(src, route=route, bond_dim=bond_dim,
                                            weight_tol=weight_tol, tick=tick)
                 bonds = None
-        if abs(result.norm - 1.0) > _NORM_TOLERANCE:
+        stored_eps = float(np.finfo(src.dtype if src.dtype.kind in "fc" else np.float64).eps)
+        if abs(result.norm - 1.0) > max(_NORM_TOLERANCE, _NORM_EPS_UNITS * stored_eps):
             warnings.warn(f"{src.name}: state norm is {result.norm:.12g}; profiled the "
                           "normalised state", UnnormalisedStateWarning, stacklevel=2)
         doc = {"format": FORMAT, "version": VERSION, "source": src.name, "kind": src.kind,
@@ -209,8 +213,9 @@ def profile(source, *, state=None, tensors=None, local_dim=None, axes=None, reny
                 cut["discarded_weight"] = discarded_weight(s, keep)
                 bound += cut["discarded_weight"]
             if spectrum is not None and spectrum is not False:
-                k = s.size if spectrum is True else int(spectrum)
-                cut["schmidt_values"] = s[:k].tolist()
+                resolved = s[:m["schmidt_rank"]]
+                k = resolved.size if spectrum is True else int(spectrum)
+                cut["schmidt_values"] = resolved[:k].tolist()
             cuts.append(cut)
         if truncating:
             doc["truncation"] = {"bond_dim": bond_dim, "weight_tol": weight_tol,
