@@ -2,8 +2,8 @@
 
 Every measurement runs in a fresh child process of this script (same
 interpreter, same environment), one after the other, and reports its wall time
-and its peak resident memory (``resource.getrusage(RUSAGE_SELF).ru_maxrss``)
-above the child's resident memory after imports.  Ratios of measurements taken
+and its peak resident memory (``VmHWM`` of /proc/self/status) above the child's
+resident memory after imports.  Ratios of measurements taken
 side by side in one run hold on a noisy, shared machine where absolute times
 do not.
 
@@ -50,7 +50,10 @@ import json, resource, sys, time
 import numpy as np, scipy.linalg, h5py
 import bondscope, bondscope._pipeline, bondscope._sweep, bondscope._checkpoint
 def rss():
-    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+    # VmHWM: this process image's peak resident set.  (ru_maxrss would also count the
+    # parent's resident set inherited through fork, which survives exec on Linux.)
+    with open("/proc/self/status") as f:
+        return next(int(l.split()[1]) * 1024 for l in f if l.startswith("VmHWM:"))
 with open("/proc/self/statm") as f:
     base = int(f.read().split()[1]) * resource.getpagesize()   # resident now
 t0 = time.perf_counter()

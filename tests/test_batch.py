@@ -198,21 +198,34 @@ def test_faults_do_not_stop_the_batch(faulty):
     assert written["counts"] == {"done": 2, "skipped": 0, "failed": len(FAULTS)}
 
 
-@pytest.mark.parametrize("workers", [
-    1,  # the lone task in flight is the culprit at once
-    2,  # both tasks in flight are retried alone; only the culprit dies again
+@pytest.mark.parametrize("workers, doomed", [
+    (1, "c.h5"),  # the lone task in flight is the culprit at once
+    (2, "c.h5"),  # both tasks in flight are retried alone; only the culprit dies again
+    (2, "a.h5"),  # the very first task: a death before any success is not a start-up failure
 ])
-def test_dead_worker_fails_only_its_checkpoint(tmp_path, monkeypatch, workers):
+def test_dead_worker_fails_only_its_checkpoint(tmp_path, monkeypatch, workers, doomed):
     rng = np.random.default_rng(11)
-    for name in ("a.h5", "b.h5", "doomed.h5", "d.h5"):
+    names = ("a.h5", "b.h5", "c.h5", "d.h5")
+    for name in names:
         write_checkpoint(tmp_path / "scan" / name, random_mps(rng, 8, 4))
-    monkeypatch.setenv(KILL_ENV, "doomed.h5")
+    monkeypatch.setenv(KILL_ENV, doomed)
     summary = run_batch(tmp_path / "scan", tmp_path / "out", workers=workers)
     status = {Path(r["source"]).name: r["status"] for r in summary.rows}
-    assert status == {"a.h5": "done", "b.h5": "done", "doomed.h5": "failed", "d.h5": "done"}
-    doomed = next(r for r in summary.rows if r["status"] == "failed")
-    assert doomed["error"].startswith("WorkerDied: ")
+    assert status == {n: "failed" if n == doomed else "done" for n in names}
+    failed = next(r for r in summary.rows if r["status"] == "failed")
+    assert failed["error"].startswith("WorkerDied: ")
     assert summary.exit_status == 1
+
+
+def test_workers_that_cannot_start_stop_the_batch(tmp_path):
+    write_checkpoint(tmp_path / "scan" / "a.h5", random_mps(np.random.default_rng(1), 8, 4))
+    # spawned workers cannot re-import a main program read from standard input
+    program = ("from bondscope._batch import run_batch\n"
+               f"run_batch({str(tmp_path / 'scan')!r}, {str(tmp_path / 'out')!r}, workers=1)\n")
+    done = subprocess.run([sys.executable, "-"], input=program, capture_output=True, text=True,
+                          cwd=tmp_path, timeout=120)
+    assert done.returncode == 1
+    assert "RuntimeError: worker processes die on start-up" in done.stderr
 
 
 def test_sigkill_mid_run_then_resume(tmp_path):

@@ -1,6 +1,7 @@
 """Figures: every kind from checkpoints, saved profiles and a batch directory."""
 
 import math
+import re
 import xml.etree.ElementTree as ET
 
 import numpy as np
@@ -136,9 +137,11 @@ def test_entropy_legend_shows_fitted_central_charge(which, boundary, c, tol):
     source = _xx_profile(64, boundary=boundary) if which == "xx64" else DEMO
     fig = plot(source, "entropy", boundary=boundary)
     (fit,) = fig.bondscope_fits
-    assert fit["c"] == pytest.approx(c, abs=tol)
-    text = _legend(fig.axes[0])[0]
-    assert "c = " in text and f"{fit['c']:.2f}"[:3] in text and "±" in text
+    assert fit["central_charge"] == pytest.approx(c, abs=tol)
+    shown = re.search(r"c = (\d+\.(\d+)) ± (\d+\.\d+)", _legend(fig.axes[0])[0])
+    half_digit = 0.5 * 10.0 ** -len(shown.group(2))  # the legend rounds c and its error
+    assert abs(float(shown.group(1)) - fit["central_charge"]) <= half_digit
+    assert abs(float(shown.group(3)) - fit["central_charge_error"]) <= half_digit
 
 
 LINES = [

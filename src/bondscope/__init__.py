@@ -18,6 +18,16 @@ Measures
 --------
 entropy_measures -- von Neumann and Rényi entropies, rank and levels of one spectrum
 
+Figures and reports (the ``plot`` extra)
+----------------------------------------
+plot               -- draw one kind of figure (entropy, spectrum, budget, heatmap, convergence)
+entropy_figure     -- S(l) per source with the central-charge fit and residuals
+spectrum_figure    -- entanglement spectrum levels -ln lambda^2 at every cut
+budget_figure      -- bond dimension needed per cut for target errors
+heatmap_figure     -- S(l, t) over a time series of checkpoints
+convergence_figure -- middle-cut entropy against discarded weight or 1/chi, extrapolated
+write_report       -- one self-contained HTML page for a batch results directory
+
 Errors
 ------
 CheckpointError  -- a checkpoint or profile that cannot be read as it stands
@@ -43,6 +53,13 @@ _LAZY = {
     "entropy_measures": "bondscope._measure",
     "UnnormalisedStateWarning": "bondscope._pipeline",
     "run_batch": "bondscope._batch",
+    "plot": "bondscope._figure",
+    "entropy_figure": "bondscope._figure",
+    "spectrum_figure": "bondscope._figure",
+    "budget_figure": "bondscope._figure",
+    "heatmap_figure": "bondscope._figure",
+    "convergence_figure": "bondscope._figure",
+    "write_report": "bondscope._report",
 }
 
 __all__ = ["CheckpointError", "MemoryLimitError", "__version__", *_LAZY]

@@ -427,7 +427,7 @@ def _describe(path, group_attr=None):
                     except (OSError, TypeError):
                         pass
         metadata = digest.hexdigest()
-    except (OSError, KeyError, RuntimeError, ValueError):
+    except Exception:  # unreadable in any way: never skipped; profiling says why
         metadata = None
     return {"size": st.st_size, "mtime_ns": st.st_mtime_ns, "metadata": metadata}, attrs
 
@@ -557,6 +557,7 @@ def _local_results(tasks, workers):
 
     context = multiprocessing.get_context("spawn")
     queue = deque(tasks)
+    finished_any = False
     while queue:
         suspects, broken = [], False
         with ProcessPoolExecutor(max_workers=min(workers, len(queue)), mp_context=context,
@@ -582,12 +583,30 @@ def _local_results(tasks, workers):
                     elif exc is not None:
                         yield _failure(task, f"{type(exc).__name__}: {_one_line(exc)}")
                     else:
+                        finished_any = True
                         yield future.result()
+        if suspects and not finished_any:
+            _check_start(context)
         if len(suspects) == 1:
             yield _failure(suspects[0], _DIED)
         else:
             for task in suspects:
                 yield from _alone(task, context)
+
+
+def _check_start(context):
+    """Raise RuntimeError when worker processes cannot even start, rather than blame
+    every checkpoint for their deaths."""
+    from concurrent.futures import ProcessPoolExecutor
+    from concurrent.futures.process import BrokenProcessPool
+
+    with ProcessPoolExecutor(max_workers=1, mp_context=context) as pool:
+        try:
+            pool.submit(os.getpid).result()
+        except BrokenProcessPool:
+            raise RuntimeError("worker processes die on start-up; new processes re-import "
+                               "the main module, which fails when Python reads the program "
+                               "from standard input (run it from a file)") from None
 
 
 def _alone(task, context):

@@ -154,8 +154,16 @@ def entropy_figure(sources, *, boundary=None, renyi=(), fit=True, title=None, **
     -------
     matplotlib.figure.Figure
         Axes 0 holds the curves; with ``fit`` axes 1 holds the residuals
-        S - S_fit.  Fitted values are in ``fig.bondscope_fits``: one dict per
-        source (``label``, ``boundary``, ``c``, ``c_error``, ...).
+        S - S_fit over the fitted window (shaded).  The fits are in
+        ``fig.bondscope_fits``: per source its ``label`` and the result of
+        :func:`bondscope._scaling.fit_scaling` (``central_charge``,
+        ``central_charge_error``, ``window``, ``residuals`` in nats, ...).
+
+    Notes
+    -----
+    The fit is the analysis one (Calabrese & Cardy, J. Stat. Mech. P06002
+    (2004), with the corrections of open chains); the dashed curve is its
+    full model, corrections included, on the cuts it was fitted to.
 
     Raises
     ------
@@ -164,6 +172,8 @@ def entropy_figure(sources, *, boundary=None, renyi=(), fit=True, title=None, **
     KeyError
         A Rényi order the profiles do not hold.
     """
+    from ._scaling import fit_scaling
+
     if boundary not in (None, "open", "periodic"):
         raise ValueError(f"boundary must be 'open' or 'periodic', found {boundary!r}")
     orders = [str(a) for a in renyi]
@@ -176,20 +186,24 @@ def entropy_figure(sources, *, boundary=None, renyi=(), fit=True, title=None, **
             ax, res = fig.subplots(2, 1, sharex=True, height_ratios=(3, 1))
         else:
             ax, res = fig.subplots(), None
-        fits, laws = [], []
+        fits, laws, window = [], [], (np.inf, -np.inf)
         for i, (entry, scale) in enumerate(zip(entries, scales)):
             prof, look = entry.profile, _look(i)
             x, s = prof.positions, prof.entropies * scale
             label = entry.label
             if fit:
                 kind = boundary or entry.meta.get("boundary") or "open"
-                result = _fit(prof, kind)
-                fits.append({"label": entry.label, "boundary": kind, **result})
-                curve = result["curve"] * scale
-                label = f"{entry.label}: c = {_pm(result['c'], result['c_error'])}"
-                ax.plot(x, curve, color=look["color"], lw=1.0, ls=(0, (4, 2)), zorder=3)
-                res.plot(x, s - curve, ls="none", ms=3.5, **look)
+                result = fit_scaling(prof, boundary=kind)
+                fits.append({"label": entry.label, **result})
+                at = np.asarray(result["positions"])
+                resid = np.asarray(result["residuals"]) / math.log(base)
+                model = s[np.searchsorted(x, at)] - resid
+                label = (f"{entry.label}: c = "
+                         f"{_pm(result['central_charge'], result['central_charge_error'])}")
+                ax.plot(at, model, color=look["color"], lw=1.0, ls=(0, (4, 2)), zorder=3)
+                res.plot(at, resid, ls="none", ms=3.0, **look)
                 laws += [kind] if kind not in laws else []
+                window = (min(window[0], at[0]), max(window[1], at[-1]))
             ax.plot(x, s, lw=0.9, label=label, ms=_marker_size(len(x)), **look)
             for k, a in enumerate(orders):
                 ax.plot(x, prof.renyi(a) * scale, color=look["color"], lw=0.9,
@@ -203,6 +217,9 @@ def entropy_figure(sources, *, boundary=None, renyi=(), fit=True, title=None, **
                 ax.plot([], [], color=_FAINT, lw=1.0, ls=(0, (4, 2)),
                         label=f"fit, {kind} chain:\n{_law(kind)}")
             res.axhline(0.0, color=_FAINT, lw=0.8)
+            for a, key in ((ax, "cuts fitted"), (res, None)):
+                a.axvspan(window[0] - 0.5, window[1] + 0.5, color="#efefef", lw=0, zorder=0,
+                          label=key)
             res.set_ylabel(f"S − fit [{unit}]")
             _cut_label(res)
         else:
@@ -210,14 +227,6 @@ def entropy_figure(sources, *, boundary=None, renyi=(), fit=True, title=None, **
         ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0))
         fig.bondscope_fits = fits
         return _title(fig, ax, title, "Entanglement entropy across the chain")
-
-
-def _fit(prof, boundary):
-    """The analysis central-charge fit as a plain dict with the fitted curve at every cut."""
-    from ._scaling import central_charge_fit
-
-    result = central_charge_fit(prof, boundary=boundary)
-    return {"c": result.c, "c_error": result.c_error, "curve": result.curve(prof.positions)}
 
 
 def _pm(value, error):
@@ -229,8 +238,8 @@ def _pm(value, error):
 
 
 def _law(boundary):
-    return ("S = (c/6) ln[(2N/π) sin(πl/N)] + s₀" if boundary == "open"
-            else "S = (c/3) ln[(N/π) sin(πl/N)] + s₀")
+    return ("S = (c/6) ln[(2N/π) sin(πl/N)] + s₀\n   + parity and 1/x corrections"
+            if boundary == "open" else "S = (c/3) ln[(N/π) sin(πl/N)] + s₀")
 
 
 def _order_text(order):
@@ -238,25 +247,14 @@ def _order_text(order):
 
 
 # --- spectrum -------------------------------------------------------------------------
-def _levels(values, floor, tol):
-    """Distinct levels -ln p (p = lambda^2 above the floor) and how many coincide in each."""
-    lam = np.asarray(values, dtype=float)
-    lam = lam[lam > (floor if floor is not None and np.isfinite(floor) else 0.0)]
-    xi = np.sort(-np.log(lam**2))
-    if xi.size == 0:
-        return xi, np.zeros(0, dtype=int)
-    breaks = np.flatnonzero(np.diff(xi) > tol * np.maximum(1.0, np.abs(xi[1:]))) + 1
-    groups = np.split(xi, breaks)
-    return np.array([g.mean() for g in groups]), np.array([g.size for g in groups])
-
-
 def spectrum_figure(sources, *, tol=1e-6, max_level=None, title=None, **options):
     """Entanglement spectrum: the levels -ln lambda^2 at every cut, one panel per source.
 
     Only Schmidt values above each cut's ``resolution_floor`` are drawn.
-    Levels that coincide within ``tol`` (relative, floor 1 in absolute terms)
-    are drawn as one marker whose area grows with the degeneracy; on charts
-    of at most 24 cuts the degeneracy is also written beside the marker.
+    Levels are grouped as in :func:`bondscope._diagnostics.spectrum_diagnostics`
+    (within ``tol`` of a group's lowest); a group is one marker whose area
+    grows with its degeneracy, and on charts of at most 24 cuts the
+    degeneracy is also written beside the marker.
 
     Parameters
     ----------
@@ -264,7 +262,7 @@ def spectrum_figure(sources, *, tol=1e-6, max_level=None, title=None, **options)
         Checkpoints are profiled with all Schmidt values; saved profiles must
         hold them (``bondscope profile --spectrum``).
     tol : float
-        Relative tolerance for levels to count as degenerate.
+        Levels closer than this (absolute, -ln lambda^2 units) count as degenerate.
     max_level : float, optional
         Upper limit of the level axis.
     title : str, optional
@@ -307,17 +305,18 @@ def _size(count):
 
 
 def _spectrum_panel(ax, entry, colour, tol):
+    from ._diagnostics import spectrum_diagnostics
+
     prof = entry.profile
-    xs, ys, counts = [], [], []
-    for l, values, floor in zip(prof.positions, prof.spectra, prof.column("resolution_floor")):
-        xi, count = _levels(values, floor, tol)
-        xs.append(np.full(xi.size, l))
-        ys.append(xi)
-        counts.append(count)
-    x, y, n = (np.concatenate(v) if v else np.zeros(0) for v in (xs, ys, counts))
+    longest = max(len(v) for v in prof.spectra)
+    report = spectrum_diagnostics(prof, levels=max(longest, 1), tol=tol, weight_floor=0.0)
+    cuts = report["cuts"]
+    x = np.concatenate([np.full(len(c["levels"]), c["position"]) for c in cuts])
+    y = np.concatenate([c["levels"] for c in cuts])
+    n = np.concatenate([c["degeneracies"] for c in cuts])
     ax.scatter(x, y, s=_size(n), c=colour, alpha=0.85, linewidths=0.5, edgecolors="white",
                zorder=3)
-    if len(prof.positions) <= 24:
+    if len(cuts) <= 24:
         for xv, yv, nv in zip(x[n > 1], y[n > 1], n[n > 1]):
             ax.annotate(f"{int(nv)}", (xv, yv), xytext=(5, 0), textcoords="offset points",
                         va="center", fontsize=7, color=_INK)

@@ -78,7 +78,12 @@ def _checkpoint_meta(path):
 
 
 def _profile_meta(prof):
-    return {k: prof.get(k) for k in _META_KEYS if prof.get(k) is not None}
+    """Metadata of a profile: its top-level fields, else the batch record's attributes."""
+    record = prof.get("batch")
+    attrs = record.get("attrs", {}) if isinstance(record, dict) else {}
+    meta = {k: attrs[k] for k in _META_KEYS if attrs.get(k) is not None}
+    meta.update({k: prof.get(k) for k in _META_KEYS if prof.get(k) is not None})
+    return meta
 
 
 def _needs_spectra(entry, spectrum):
@@ -212,7 +217,6 @@ def collect(sources, *, spectrum=False, **options):
     OSError
         A path that does not exist.
     """
-    from ._cli._common import is_profile_path
     from ._document import Profile, load_profile
 
     if isinstance(sources, (str, Path, Profile, Entry)):
@@ -237,13 +241,20 @@ def collect(sources, *, spectrum=False, **options):
             entries += _from_results(path, spectrum)
         elif not path.exists():
             raise OSError(f"{path}: no such checkpoint, profile or results directory")
-        elif is_profile_path(path):
+        elif _is_saved_profile(path):
             prof = load_profile(path)
             entries.append(_needs_spectra(Entry(path.stem, prof, str(path), _profile_meta(prof)),
                                           spectrum))
         else:
             entries.append(_profile_checkpoint(path, spectrum, options))
     return entries
+
+
+def _is_saved_profile(path):
+    from ._document import _is_profile_h5
+
+    suffix = path.suffix.lower()
+    return suffix in (".json", ".csv") or (suffix in (".h5", ".hdf5") and _is_profile_h5(path))
 
 
 def _profile_checkpoint(path, spectrum, options):
