@@ -52,6 +52,15 @@ def _xx_profile(L, base="e", boundary="open"):
         "cuts": [{"position": l, "entropy": float(v)} for l, v in enumerate(s, 1)]})
 
 
+# analysis module behind each kind that needs one besides the scaling fit
+_ANALYSIS = {"budget": "bondscope._budget", "convergence": "bondscope._comparison"}
+
+
+def _needs(kind):
+    if kind in _ANALYSIS:
+        pytest.importorskip(_ANALYSIS[kind])
+
+
 def _legend(ax):
     return [t.get_text() for t in ax.get_legend().get_texts()]
 
@@ -80,6 +89,7 @@ def _resolve(name, series, timed, batch):
 
 @pytest.mark.parametrize("kind, which, options", KIND_SOURCES)
 def test_every_kind_renders(kind, which, options, series, timed, batch, tmp_path):
+    _needs(kind)
     if which == "demo" and not DEMO.is_file():
         pytest.skip("data/demo.h5 not built (scripts/make_data.py)")
     out = tmp_path / f"{kind}.png"
@@ -247,15 +257,34 @@ def test_heatmap_refuses_mixed_lengths(timed):
 
 
 # --- budget and convergence -----------------------------------------------------------------
-def test_budget_lines_per_target(series):
-    fig = plot(series[-1], "budget", targets=[1e-3, 1e-5, 1e-7])
+BUDGETS = [
+    # split, targets
+    ("cut", [1e-3, 1e-5, 1e-7]),     # the discarded weight allowed at each cut
+    ("equal", [1e-4, 1e-6]),         # a whole-state bound, spread equally
+    ("pooled", [1e-4]),              # a whole-state bound, pooled over the cuts
+]
+
+
+@pytest.mark.parametrize("split, targets", BUDGETS)
+def test_budget_lines_per_target(split, targets, series):
+    _needs("budget")
+    fig = plot(series[-1], "budget", targets=targets, split=split)
     ax = fig.axes[0]
-    assert len(ax.get_lines()) == 4  # stored bond dimension and one line per target
-    assert _legend(ax)[0] == "stored χ"
+    assert len(ax.get_lines()) == 1 + len(targets)  # stored bond dimension, one per target
+    assert _legend(ax)[0].startswith("stored χ")
     assert ax.get_ylabel() == "bond dimension χ"
     stored = ax.get_lines()[0].get_ydata()
     for line in ax.get_lines()[1:]:
         assert np.all(line.get_ydata() <= stored)  # never more than is stored
+
+
+def test_budget_of_a_known_spectrum():
+    _needs("budget")
+    # AKLT with edge spins: weights (1/2, 1/2) at every cut (Affleck, Kennedy, Lieb, Tasaki,
+    # PRL 59, 799 (1987)), so any target below 1/2 needs chi = 2 everywhere
+    fig = plot(bondscope.profile(states.aklt(6), spectrum=True), "budget", targets=[0.4, 1e-8])
+    for line in fig.axes[0].get_lines()[1:]:
+        np.testing.assert_array_equal(line.get_ydata(), 2)
 
 
 @pytest.mark.parametrize("against, xlabel", [
@@ -263,14 +292,28 @@ def test_budget_lines_per_target(series):
     ("bond", "inverse bond dimension 1/χ"),     # 1/chi
 ])
 def test_convergence_axes_and_limit(against, xlabel, series):
+    _needs("convergence")
     fig = plot(series, "convergence", against=against)
     ax = fig.axes[0]
     assert ax.get_xlabel() == xlabel and ax.get_xlim()[0] == 0.0
     (limit,) = fig.bondscope_limits
-    assert any(f"{limit['value']:.3f}"[:4] in t for t in _legend(ax))
+    assert f"extrapolated: {limit['value']:.6g}" in _legend(ax)
+    assert len(ax.get_lines()) == 3  # extrapolation line, the runs, the limit
+
+
+def test_convergence_limit_of_the_demo_series(series):
+    _needs("convergence")
+    if not (ROOT / "data" / "series").is_dir():
+        pytest.skip("data/series not built (scripts/make_data.py)")
+    # the series is the open critical Ising chain of 64 sites; its exact middle-cut entropy
+    # from reference.freefermion (Peschel, J. Phys. A 36, L205 (2003))
+    exact = freefermion.ising_entropies(64, 1.0)[31]
+    (limit,) = plot(series, "convergence").bondscope_limits
+    assert limit["value"] == pytest.approx(exact, abs=1e-3)
 
 
 def test_convergence_needs_the_run_weight(timed):
+    _needs("convergence")
     with pytest.raises(ValueError, match="max_discarded_weight"):
         plot(timed[:2], "convergence")
 
@@ -279,7 +322,7 @@ def test_convergence_needs_the_run_weight(timed):
 CLI = [
     # arguments after SOURCE (batch directory), expected exit status
     (["--kind", "entropy", "--boundary", "open", "-o", "{out}.png"], 0),
-    (["--kind", "budget", "--targets", "1e-4,1e-6", "-o", "{out}.pdf"], 0),
+    (["--kind", "budget", "--targets", "1e-4,1e-6", "--split", "equal", "-o", "{out}.pdf"], 0),
     (["--kind", "convergence", "--against", "bond", "-o", "{out}.svg"], 0),
     (["--kind", "budget", "--targets", "2", "-o", "{out}.png"], 2),   # target outside (0, 1)
     (["--kind", "entropy", "-o", "{out}.gif"], 2),                    # unknown format
@@ -289,6 +332,7 @@ CLI = [
 
 @pytest.mark.parametrize("args, status", CLI)
 def test_cli_plot(args, status, batch, tmp_path, capsys):
+    _needs(args[1])
     args = [a.format(out=tmp_path / "fig") for a in args]
     assert main(["plot", str(batch), *args]) == status
     err = capsys.readouterr().err

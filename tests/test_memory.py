@@ -128,10 +128,7 @@ import json, resource, sys, warnings
 sys.path.insert(0, {src!r})
 import numpy, scipy.linalg, h5py, bondscope, bondscope._pipeline, bondscope._sweep
 with open("/proc/self/statm") as f:
-    vm, base = (int(x) * resource.getpagesize() for x in f.read().split()[:2])
-if {limit!r}:
-    room = vm + int({limit!r})
-    resource.setrlimit(resource.RLIMIT_AS, (room, room))
+    base = int(f.read().split()[1]) * resource.getpagesize()
 warnings.simplefilter("ignore")
 prof = bondscope.profile({path!r})
 with open("/proc/self/status") as f:     # VmHWM: peak of this image, not the parent's
@@ -140,10 +137,9 @@ print(json.dumps({{"peak": peak, "cuts": len(prof.cuts)}}))
 """
 
 
-@pytest.mark.slow
-def test_checkpoint_larger_than_the_memory_it_gets(tmp_path):
-    # a ~200 MB checkpoint profiled in a child whose address space has room for only
-    # 75% of the file: a whole-file load cannot fit, the streaming sweeps do
+def test_checkpoint_profiled_in_a_fraction_of_its_size(tmp_path):
+    # a ~160 MB checkpoint profiled in a child: its peak resident memory above the
+    # imports stays under 3/4 of the file, which a whole-file load (>= 1x) cannot
     sites, chi = 56, 512
     bonds = [min(2**i, 2**(sites - i), chi) for i in range(1, sites)]
     path = tmp_path / "big.h5"
@@ -154,12 +150,10 @@ def test_checkpoint_larger_than_the_memory_it_gets(tmp_path):
             t = rng.standard_normal((full[i], 2, full[i + 1])) / np.sqrt(2 * full[i + 1])
             f.create_dataset(f"/psi/T{i}", data=t)
     size = os.path.getsize(path)
-    assert size > 100 * 2**20
-    limit = int(0.75 * size)
-    out = subprocess.run([sys.executable, "-c",
-                          _CHILD.format(src=str(SRC), path=str(path), limit=limit)],
-                         capture_output=True, text=True)
+    assert size > 150 * 2**20
+    out = subprocess.run([sys.executable, "-c", _CHILD.format(src=str(SRC), path=str(path))],
+                         capture_output=True, text=True, timeout=600)
     assert out.returncode == 0, out.stderr[-2000:]
     report = json.loads(out.stdout.strip().splitlines()[-1])
     assert report["cuts"] == sites - 1
-    assert report["peak"] < limit
+    assert report["peak"] < 0.75 * size

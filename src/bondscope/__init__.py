@@ -28,6 +28,13 @@ heatmap_figure     -- S(l, t) over a time series of checkpoints
 convergence_figure -- middle-cut entropy against discarded weight or 1/chi, extrapolated
 write_report       -- one self-contained HTML page for a batch results directory
 
+Analyses
+--------
+fit_scaling          -- central charge, constant and scaling law (Calabrese-Cardy fit)
+bond_budget          -- smallest bond dimension per cut for an error target, and its cost
+compare_profiles     -- per-cut differences, convergence and extrapolation over runs
+spectrum_diagnostics -- entanglement gap and degeneracy pattern per cut
+
 Errors
 ------
 CheckpointError  -- a checkpoint or profile that cannot be read as it stands
@@ -60,6 +67,10 @@ _LAZY = {
     "heatmap_figure": "bondscope._figure",
     "convergence_figure": "bondscope._figure",
     "write_report": "bondscope._report",
+    "fit_scaling": "bondscope._scaling",
+    "bond_budget": "bondscope._budget",
+    "compare_profiles": "bondscope._comparison",
+    "spectrum_diagnostics": "bondscope._diagnostics",
 }
 
 __all__ = ["CheckpointError", "MemoryLimitError", "__version__", *_LAZY]

@@ -403,13 +403,19 @@ def _target_text(eps):
     return f"ε = 10$^{{{exp}}}$" if mant == "1" else f"ε = {mant}·10$^{{{exp}}}$"
 
 
-def budget_figure(sources, *, targets=(1e-4, 1e-6, 1e-8), title=None, **options):
+_SPLITS = {"cut": "target per cut", "equal": "whole-state target, equal split",
+           "pooled": "whole-state target, pooled"}
+
+
+def budget_figure(sources, *, targets=(1e-4, 1e-6, 1e-8), split="cut", title=None,
+                  **options):
     """Bond dimension needed at each cut to meet target errors, beside the stored ones.
 
     One panel per source.  For each target error the curve gives, per cut, the
-    smallest bond dimension the analysis budget allows (see
-    :func:`bondscope._budget.bond_budget`); the grey band is the bond
-    dimension stored in the checkpoint.
+    smallest bond dimension of the analysis budget
+    (:func:`bondscope._budget.bond_budget`); the grey band is the bond
+    dimension stored.  Each legend entry also gives the budget's largest χ
+    and its memory against the stored chain.
 
     Parameters
     ----------
@@ -417,6 +423,11 @@ def budget_figure(sources, *, targets=(1e-4, 1e-6, 1e-8), title=None, **options)
         Checkpoints are profiled with all Schmidt values; saved profiles must hold them.
     targets : sequence of float
         Target errors in (0, 1).
+    split : {"cut", "equal", "pooled"}
+        "cut": each target is the discarded weight allowed at every cut;
+        "equal", "pooled": each target bounds the whole state's truncation
+        error (the sum of the per-cut discarded weights), spread equally
+        over the cuts or pooled across them.
     title : str, optional
     **options
         Profiling options for checkpoints.
@@ -424,64 +435,76 @@ def budget_figure(sources, *, targets=(1e-4, 1e-6, 1e-8), title=None, **options)
     Returns
     -------
     matplotlib.figure.Figure
+        The budgets are in ``fig.bondscope_budgets`` (per source, a list of
+        the :func:`~bondscope._budget.bond_budget` results, one per target).
 
     Raises
     ------
     CheckpointError
         A saved profile without Schmidt values.
     ValueError
-        A target outside (0, 1).
+        A target outside (0, 1), or an unknown split.
     """
     from matplotlib.ticker import FuncFormatter
-
-    from ._budget import bond_budget
 
     targets = sorted({float(t) for t in targets}, reverse=True)
     bad = [t for t in targets if not 0 < t < 1]
     if not targets or bad:
         raise ValueError(f"target errors must lie in (0, 1), found {bad or 'none'}")
+    if split not in _SPLITS:
+        raise ValueError(f"split must be one of {', '.join(_SPLITS)}, found {split!r}")
     entries = collect(sources, spectrum=True, **options)
+    from ._budget import bond_budget
+
+    def budget(prof, eps):
+        if split == "cut":
+            return bond_budget(prof, target=eps)
+        return bond_budget(prof, total=eps, split=split)
+
+    budgets = []
     with _style():
-        fig = _figure(max(5.6, 3.8 * len(entries) + 1.8), 4.2)
+        fig = _figure(max(6.4, 4.0 * len(entries) + 2.6), 4.2)
         axes = np.atleast_1d(fig.subplots(1, len(entries), sharey=True, squeeze=False)[0])
         for ax, entry in zip(axes, entries):
             prof = entry.profile
             x = prof.positions
             stored = prof.bond_dimensions
-            ax.fill_between(x, 1, stored, step="mid", color="#e3e3e3", lw=0)
-            ax.step(x, stored, where="mid", color=_FAINT, lw=1.2, label="stored χ")
-            for i, eps in enumerate(targets):
-                need = bond_budget(prof, eps)
-                ax.plot(x, need, lw=1.2, ms=_marker_size(len(x)), drawstyle="steps-mid",
-                        label=_target_text(eps), **_look(i))
+            ax.fill_between(x, 1, stored, step="mid", color="#e6e6e6", lw=0)
+            ax.step(x, stored, where="mid", color=_FAINT, lw=1.2,
+                    label=f"stored χ (max {int(stored.max())})")
+            found = [budget(prof, eps) for eps in targets]
+            for i, (eps, result) in enumerate(zip(targets, found)):
+                need = [c["bond_dimension"] for c in result["cuts"]]
+                ax.plot([c["position"] for c in result["cuts"]], need, lw=1.2,
+                        ms=_marker_size(len(x)), drawstyle="steps-mid",
+                        label=_budget_text(eps, result), **_look(i))
+            budgets.append({"label": entry.label, "budgets": found})
             ax.set_yscale("log", base=2)
             ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:g}"))
             ax.set_ylim(bottom=1)
             ax.set_title(entry.label, fontweight="normal", fontsize=9)
             _cut_label(ax)
+            ax.legend(title=_SPLITS[split], title_fontsize=8, fontsize=7.5, loc="lower center")
         axes[0].set_ylabel("bond dimension χ")
-        axes[-1].legend(title="target error", title_fontsize=8, loc="upper left",
-                        bbox_to_anchor=(1.01, 1.0))
         if title is None:
             title = "Bond dimension needed per cut"
         if title:
             fig.suptitle(title, x=0.01, ha="left", fontsize=10, fontweight="bold")
+        fig.bondscope_budgets = budgets
         return fig
 
 
+def _budget_text(eps, result):
+    text = f"{_target_text(eps)}: max χ {result['max_bond_dimension']}"
+    if result.get("memory_ratio") is not None:
+        text += f", memory ×{result['memory_ratio']:.2g}"
+    return text
+
+
 # --- convergence ----------------------------------------------------------------------
-def _middle_entropy(entry, scale):
-    prof = entry.profile
-    pos = prof.positions
-    at = np.flatnonzero(pos == prof.sites // 2)
-    if at.size == 0:
-        raise ValueError(f"{entry.label}: no cut at the middle position {prof.sites // 2}")
-    return float(prof.entropies[at[0]]) * scale
-
-
 def _discarded(entry):
-    value = entry.meta.get("max_discarded_weight")
-    if value is None:
+    value = entry.meta.get("max_discarded_weight", entry.profile.get("discarded_weight"))
+    if not isinstance(value, (int, float)):
         raise ValueError(f"{entry.label}: the run's discarded weight is unknown (no "
                          "'max_discarded_weight' attribute in its checkpoint); plot against "
                          "1/chi instead (--against bond)")
@@ -495,21 +518,53 @@ def _inverse_bond(entry):
     return 1.0 / chi
 
 
+def _limit(members, x):
+    """The comparison's extrapolation S = S0 + a x at the middle cut, in nats.
+
+    Each profile goes to :func:`bondscope._comparison.compare_profiles` with
+    ``x`` as its run-level ``discarded_weight`` (and its own truncation
+    fields left out), so the extrapolation is linear in the plotted quantity.
+    """
+    from ._comparison import compare_profiles
+
+    docs = []
+    for (entry, _), xv in zip(members, x):
+        doc = entry.profile.to_dict()
+        doc.pop("truncation", None)
+        for cut in doc["cuts"]:
+            cut.pop("discarded_weight", None)
+        doc["discarded_weight"] = float(xv)
+        docs.append(doc)
+    result = compare_profiles(docs, series="bond")
+    fit = result["extrapolation"]
+    if fit is None:
+        raise ValueError(f"no extrapolation: {result['extrapolation_note']}")
+    middle = members[0][0].profile.sites // 2
+    if middle not in result["positions"]:
+        raise ValueError(f"no common cut at the middle position {middle}")
+    at = result["positions"].index(middle)
+    return {"position": middle, "value": fit["entropies"][at], "slope": fit["slopes"][at],
+            "units": "nats", "converged": result["converged"], "verdict": result["verdict"]}
+
+
 def convergence_figure(sources, *, against="weight", title=None, **options):
     """Middle-cut entropy across a series against discarded weight or 1/χ, extrapolated.
 
-    Sources are grouped by their ``series`` (from a batch) and each group is
-    fitted by the analysis extrapolation (see
-    :func:`bondscope._comparison.extrapolate`), drawn as a line reaching the
-    axis at zero with the extrapolated value marked there.
+    Sources are grouped by their ``series`` (from a batch; otherwise all are
+    one group).  Each group is extrapolated to zero by the comparison's
+    linear fit (:func:`bondscope._comparison.compare_profiles`) in the
+    plotted quantity; the left panel shows the fit reaching the axis, the
+    right one the same points on a logarithmic axis against the limit.
 
     Parameters
     ----------
     sources : list of sources
-        At least two per group.
+        At least two per group, of one chain length.
     against : {"weight", "bond"}
-        x axis: the largest discarded weight of each source, or 1/χ with χ
-        its largest bond dimension.
+        x axis: each run's largest discarded weight (the checkpoint
+        attribute ``max_discarded_weight``, or a top-level profile field
+        ``discarded_weight``), or 1/χ with χ its bond dimension (the
+        ``bond_dim`` attribute, else the largest stored one).
     title : str, optional
     **options
         Profiling options for checkpoints.
@@ -517,20 +572,21 @@ def convergence_figure(sources, *, against="weight", title=None, **options):
     Returns
     -------
     matplotlib.figure.Figure
-        Extrapolated values are in ``fig.bondscope_limits`` (one dict per group).
+        The limits are in ``fig.bondscope_limits``: per group ``series``,
+        ``value`` (in the figure's unit), ``slope``, ``position``, ``verdict``.
 
     Raises
     ------
     ValueError
-        Fewer than two sources in a group, or a source without the x quantity.
+        Fewer than two sources in a group, a source without the x quantity,
+        or equal x for all sources.
     """
-    from ._comparison import extrapolate
-
     measure = {"weight": _discarded, "bond": _inverse_bond}.get(against)
     if measure is None:
         raise ValueError(f"against must be 'weight' or 'bond', found {against!r}")
     entries = collect(sources, **options)
     scales, base = same_base(entries)
+    to_unit = 1.0 / math.log(base)
     groups = {}
     for entry, scale in zip(entries, scales):
         groups.setdefault(entry.meta.get("series"), []).append((entry, scale))
@@ -544,26 +600,26 @@ def convergence_figure(sources, *, against="weight", title=None, **options):
             if len(members) < 2:
                 raise ValueError(f"series {name or '(all sources)'}: convergence needs at "
                                  f"least two sources, found {len(members)}")
+            members.sort(key=lambda m: -measure(m[0]))
             x = np.array([measure(e) for e, _ in members])
-            y = np.array([_middle_entropy(e, k) for e, k in members])
-            fit = extrapolate(x, y)
+            y = np.array([_middle(e) * k for e, k in members])
+            limit = _limit(members, x)
+            value, slope = limit["value"] * to_unit, limit["slope"] * to_unit
             look = _look(i)
             grid = np.linspace(0.0, x.max() * 1.05, 50)
-            ax.plot(grid, fit.curve(grid), color=look["color"], lw=1.0, ls=(0, (4, 2)))
+            ax.plot(grid, value + slope * grid, color=look["color"], lw=1.0, ls=(0, (4, 2)))
             ax.plot(x, y, ls="none", label=name or "middle-cut entropy", **look)
-            ax.plot([0.0], [fit.value], marker="*", ms=12, mfc="white", mec=look["color"],
-                    mew=1.3, ls="none", clip_on=False,
-                    label=f"extrapolated: {_pm(fit.value, fit.error)}")
-            zoom.axhspan(fit.value - (fit.error or 0.0), fit.value + (fit.error or 0.0),
-                         color=look["color"], alpha=0.12, lw=0)
-            zoom.axhline(fit.value, color=look["color"], lw=0.9, ls=(0, (4, 2)))
+            ax.plot([0.0], [value], marker="*", ms=12, mfc="white", mec=look["color"],
+                    mew=1.3, ls="none", clip_on=False, label=f"extrapolated: {value:.6g}")
+            zoom.axhline(value, color=look["color"], lw=0.9, ls=(0, (4, 2)))
             zoom.plot(x, y, ls="-", lw=0.8, **look)
             for (e, _), xv, yv in zip(members, x, y):
                 chi = e.max_bond
                 zoom.annotate(f"χ={chi}" if chi else e.label, (xv, yv), xytext=(0, 7),
                               textcoords="offset points", ha="center", fontsize=7.5,
                               color=_INK)
-            limits.append({"series": name, **fit.to_dict()})
+            limits.append({"series": name, **limit, "value": value, "slope": slope,
+                           "units": entropy_unit(base)})
         ax.set_xlim(left=0.0)
         ax.set_xlabel(xlabel)
         ax.set_ylabel(f"S(N/2) [{entropy_unit(base)}]")
@@ -573,6 +629,14 @@ def convergence_figure(sources, *, against="weight", title=None, **options):
         zoom.set_title("the approach to the limit", fontweight="normal", fontsize=9)
         fig.bondscope_limits = limits
         return _title(fig, ax, title, "Convergence of the middle-cut entropy")
+
+
+def _middle(entry):
+    prof = entry.profile
+    at = np.flatnonzero(prof.positions == prof.sites // 2)
+    if at.size == 0:
+        raise ValueError(f"{entry.label}: no cut at the middle position {prof.sites // 2}")
+    return float(prof.entropies[at[0]])
 
 
 # --- saving and dispatch --------------------------------------------------------------

@@ -87,8 +87,8 @@ document.querySelectorAll("table.sortable").forEach(function (table) {
       rows.sort(function (a, b) {
         var x = a.cells[col].dataset.v, y = b.cells[col].dataset.v;
         var nx = parseFloat(x), ny = parseFloat(y), r;
-        if (x === "" && y === "") r = 0; else if (x === "") r = 1; else if (y === "") r = -1;
-        else if (!isNaN(nx) && !isNaN(ny)) r = nx - ny; else r = x.localeCompare(y);
+        if (x === "" || y === "") return (x === "") - (y === "");  // blanks last
+        r = !isNaN(nx) && !isNaN(ny) ? nx - ny : x.localeCompare(y);
         return down ? -r : r;
       });
       rows.forEach(function (r) { body.appendChild(r); });

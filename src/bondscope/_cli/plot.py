@@ -38,6 +38,9 @@ def add_arguments(p):
                    help="entropy: curves only, no central-charge fit or residual panel")
     g.add_argument("--targets", metavar="EPS", type=_targets, default=[1e-4, 1e-6, 1e-8],
                    help="budget: target errors, comma-separated (default: 1e-4,1e-6,1e-8)")
+    g.add_argument("--split", choices=("cut", "equal", "pooled"), default="cut",
+                   help="budget: each target is per cut (default), or bounds the whole state "
+                        "spread equally or pooled over the cuts")
     g.add_argument("--against", choices=("weight", "bond"), default="weight",
                    help="convergence: x axis, discarded weight or 1/chi (default: weight)")
     g.add_argument("--title", help="figure title ('' for none)")
@@ -53,7 +56,7 @@ def figure_options(args):
     if args.kind == "entropy":
         opts.update(boundary=args.boundary, renyi=args.renyi, fit=not args.no_fit)
     elif args.kind == "budget":
-        opts.update(targets=args.targets)
+        opts.update(targets=args.targets, split=args.split)
     elif args.kind == "convergence":
         opts.update(against=args.against)
     return opts

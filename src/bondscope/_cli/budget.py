@@ -1,0 +1,63 @@
+"""`bondscope budget`: the bond dimensions an error target needs, and their cost."""
+
+from ._common import (UsageError, add_layout_arguments, add_measure_arguments, print_json,
+                      read_input)
+
+HELP = "smallest bond dimension per cut for a discarded-weight target, and its cost"
+ORDER = 21
+
+
+def add_arguments(p):
+    p.add_argument("file", metavar="CHECKPOINT_OR_PROFILE",
+                   help="HDF5 checkpoint, or a saved profile with Schmidt values")
+    g = p.add_mutually_exclusive_group(required=True)
+    g.add_argument("--target", metavar="EPS", type=float,
+                   help="discarded weight allowed at each cut")
+    g.add_argument("--total", metavar="EPS", type=float,
+                   help="sum of discarded weights allowed over all cuts (infidelity bound)")
+    p.add_argument("--split", choices=("equal", "pooled"), default="equal",
+                   help="with --total: equal share per cut (default) or pooled smallest weights")
+    p.add_argument("--dtype", metavar="DTYPE",
+                   help="element type for the memory estimate (default: the stored dtype)")
+    p.add_argument("--json", action="store_true", help="print the result as JSON")
+    add_layout_arguments(p)
+    add_measure_arguments(p)
+
+
+def _size(n):
+    for unit in ("B", "KiB", "MiB", "GiB", "TiB"):
+        if n < 1024 or unit == "TiB":
+            return f"{n:.4g} {unit}"
+        n /= 1024
+
+
+def run(args):
+    import numpy as np
+
+    from .._budget import bond_budget
+
+    try:
+        np.dtype(args.dtype)
+    except TypeError:
+        raise UsageError(f"--dtype {args.dtype!r} is not a numpy dtype") from None
+    prof = read_input(args.file, args, spectrum=True)
+    res = bond_budget(prof, target=args.target, total=args.total, split=args.split,
+                      dtype=args.dtype, local_dim=args.local_dim)
+    if args.json:
+        print_json(res)
+        return 0
+    goal = (f"target {res['target']:g} per cut" if res["target"] is not None
+            else f"total {res['total']:g} ({res['split']} split)")
+    print(f"{goal}: max bond dimension {res['max_bond_dimension']}, discarded weight sum "
+          f"{res['discarded_weight_sum']:.3g}")
+    print(f"{'cut':>5} {'chi':>6} {'now':>6} {'discarded':>11}")
+    for c in res["cuts"]:
+        print(f"{c['position']:>5} {c['bond_dimension']:>6} {c['current_bond_dimension']:>6} "
+              f"{c['discarded_weight']:>11.3g}")
+    if res["memory_bytes"] is None:
+        print("cost: unknown without local dimensions (give --local-dim)")
+    else:
+        print(f"memory {_size(res['memory_bytes'])} ({res['dtype']}), "
+              f"{res['memory_ratio']:.3g} x current; sweep cost {res['sweep_cost_ratio']:.3g} x "
+              "current")
+    return 0

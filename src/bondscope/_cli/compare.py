@@ -1,0 +1,54 @@
+"""`bondscope compare`: convergence or time growth over profiles of one system."""
+
+from ._common import add_layout_arguments, add_measure_arguments, print_json, read_input
+
+HELP = "compare profiles of one system: per-cut differences, convergence, extrapolation"
+ORDER = 22
+
+
+def add_arguments(p):
+    p.add_argument("files", metavar="FILE", nargs="+",
+                   help="two or more saved profiles or checkpoints of the same chain")
+    p.add_argument("--tol", metavar="NATS", type=float, default=1e-3,
+                   help="convergence threshold on the last per-cut change (default 1e-3 nats)")
+    p.add_argument("--series", choices=("auto", "bond", "time"), default="auto",
+                   help="runs at growing bond dimension, or snapshots in time (default: time "
+                        "when every document has a time field)")
+    p.add_argument("--json", action="store_true", help="print the result as JSON")
+    add_layout_arguments(p)
+    add_measure_arguments(p)
+
+
+def run(args):
+    from .._comparison import checkpoint_meta, compare_profiles
+
+    from pathlib import Path
+
+    profs = [read_input(f, args) for f in args.files]
+    res = compare_profiles(profs, tol=args.tol, series=args.series,
+                           names=[Path(f).name for f in args.files],
+                           meta=[checkpoint_meta(f) for f in args.files])
+    if args.json:
+        print_json(res)
+        return 0
+    big = res["largest_difference"]
+    print(f"{res['series']} series of {len(res['runs'])} runs, {len(res['positions'])} cuts: "
+          f"{', '.join(res['runs'])}")
+    print(f"largest change {big['value']:+.4g} nats at cut {big['position']} "
+          f"({big['runs'][0]} -> {big['runs'][1]})")
+    print(f"last change {res['last_difference']:.4g} nats: {res['verdict']} "
+          f"(threshold {res['tol']:g})")
+    if res["series"] == "time":
+        rate = res["middle_growth_rate"]
+        print(f"middle cut {res['middle_position']}: growth rate "
+              f"{'-' if rate is None else format(rate, '.4g')} nats per unit time "
+              f"(times from {res['time_source']})")
+    elif res["extrapolation"] is None:
+        print(f"no extrapolation: {res['extrapolation_note']}")
+    else:
+        ext = res["extrapolation"]["entropies"]
+        mid = len(ext) // 2
+        print(f"extrapolated to zero discarded weight: S({res['positions'][mid]}) = "
+              f"{ext[mid]:.6g} nats")
+    return 0
+
