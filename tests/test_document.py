@@ -1,6 +1,7 @@
 """The Profile document: round trips, minimal external documents, schema errors."""
 
 import json
+import os
 import warnings
 
 import numpy as np
@@ -27,6 +28,9 @@ def test_round_trip(tmp_path, prof, suffix):
     assert back.to_dict() == prof.to_dict()
     assert back.renyi_orders == ["0.5", "2", "inf"]
     assert [p.name for p in tmp_path.iterdir()] == [f"p{suffix}"]  # no temporary left
+    mask = os.umask(0)
+    os.umask(mask)
+    assert path.stat().st_mode & 0o777 == 0o666 & ~mask    # ordinary permissions, not 0600
 
 
 def test_json_contract(prof):

@@ -119,6 +119,14 @@ def test_formats_by_suffix(suffix, valid, tmp_path):
     assert valid(path.read_bytes())
 
 
+@pytest.mark.parametrize("suffix", [".png", ".svg", ".pdf"])  # each format
+def test_same_data_same_bytes(suffix, tmp_path):
+    first, again = tmp_path / f"a{suffix}", tmp_path / f"b{suffix}"
+    for path in (first, again):
+        plot(_xx_profile(16), "entropy", path, fit=False)
+    assert first.read_bytes() == again.read_bytes()
+
+
 @pytest.mark.parametrize("name", [
     "f.jpg",   # not one of the three formats
     "f",       # no suffix at all
@@ -230,14 +238,22 @@ def test_spectrum_hides_levels_below_the_floor():
                                np.sort(-np.log(np.array([0.8, 0.6]) ** 2)).round(12))
 
 
-@pytest.mark.parametrize("kind", [
-    "spectrum",   # levels need Schmidt values
-    "budget",     # so does the bond budget
+@pytest.mark.parametrize("kind, options, needs", [
+    ("spectrum", {}, "--spectrum"),              # levels need Schmidt values
+    ("budget", {}, "--spectrum"),                # so does the bond budget
+    ("entropy", {"renyi": ["2"]}, "--renyi 2"),  # Renyi curves need Renyi entropies
 ])
-def test_saved_profile_without_spectra(kind, bare_profile):
-    with pytest.raises(CheckpointError, match=r"no Schmidt values.*bondscope profile .*"
-                                              r"--spectrum"):
-        plot(bare_profile, kind)
+def test_saved_profile_lacking_what_the_figure_needs(kind, options, needs, bare_profile):
+    with pytest.raises(CheckpointError, match=rf"bare.json: no .*bondscope profile .*{needs}"):
+        plot(bare_profile, kind, **options)
+
+
+def test_renyi_orders_match_by_value():
+    prof = bondscope.profile(states.aklt(4), renyi=["2.0"])
+    fig = plot(prof, "entropy", renyi=["2"], fit=False)
+    # AKLT with edge spins: flat spectrum (1/2, 1/2), so S_2 = ln 2 at every cut (Affleck,
+    # Kennedy, Lieb, Tasaki, PRL 59, 799 (1987))
+    np.testing.assert_allclose(fig.axes[0].get_lines()[1].get_ydata(), math.log(2))
 
 
 # --- heatmap -----------------------------------------------------------------------------

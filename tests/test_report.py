@@ -104,6 +104,42 @@ def test_spectra_missing_leaves_a_note(batch, tmp_path):
     assert text.count("data:image/png;base64") == 2  # entropy and convergence
 
 
+def test_checkpoints_gone_converges_against_bond(batch, tmp_path):
+    # a results directory read where its checkpoints are not: no run discarded weight
+    out = Path(shutil.copytree(batch[0], tmp_path / "out"))
+    summary = json.loads((out / "summary.json").read_text())
+    for row in summary["rows"]:
+        row["source"] = "/elsewhere/" + Path(row["source"]).name
+    (out / "summary.json").write_text(json.dumps(summary))
+    text = report_html(out)
+    assert "against the inverse bond dimension" in text
+    assert text.count("data:image/png;base64") == 3
+
+
+def test_time_series_gets_a_heatmap(batch, tmp_path):
+    out = Path(shutil.copytree(batch[0], tmp_path / "out"))
+    summary = json.loads((out / "summary.json").read_text())
+    for t, row in enumerate(summary["rows"]):
+        row["time"] = 0.5 * t
+    (out / "summary.json").write_text(json.dumps(summary))
+    text = report_html(out)
+    assert "Entropy S(l, t) through the series" in text and "extrapolated" not in text
+
+
+def test_sharded_summaries_are_merged(batch, tmp_path):
+    # an array job writes summary.shard-I-of-N.json files and no summary.json
+    out = Path(shutil.copytree(batch[0], tmp_path / "out"))
+    summary = json.loads((out / "summary.json").read_text())
+    (out / "summary.json").unlink()
+    for i in range(2):
+        part = dict(summary, rows=summary["rows"][i::2])
+        (out / f"summary.shard-{i}-of-2.json").write_text(json.dumps(part))
+    page = _Page()
+    page.feed(report_html(out))
+    assert sorted(c for c in page.cells if c.endswith(".h5")) == \
+        sorted(Path(r["source"]).name for r in summary["rows"])
+
+
 def test_write_report(batch, tmp_path):
     path = write_report(batch[0], tmp_path / "r.html")
     text = path.read_text(encoding="utf-8")

@@ -127,7 +127,7 @@ def estimate(src, route=None, truncating=False, spectra_kept=False):
     MPS: two sweeps may run at once, each holding a site tensor as read (plus
     the stored copy when it is converted or transposed), its product with a
     bond matrix, and a few bond matrices; plus the in-memory part of the bond
-    store (at most 64 MiB); truncation tracking adds two tensor-sized blocks.
+    store (at most 32 MiB); truncation tracking adds two tensor-sized blocks.
     Work sums d chi_l chi_r (chi_l + chi_r) per site and chi^3 per bond SVD.
     State vectors: the larger of the read (the amplitudes, plus the stored
     array while it is converted) and the computation.  gram holds the state,
@@ -137,6 +137,8 @@ def estimate(src, route=None, truncating=False, spectra_kept=False):
     block being decomposed and its right singular vectors).  Checked against
     measured peaks by ``scripts/bench.py``.
     """
+    from . import _sweep
+
     item = np.dtype(src.compute_dtype).itemsize
     stored = np.dtype(src.dtype).itemsize
     cplx = 4.0 if np.dtype(src.compute_dtype).kind == "c" else 1.0
@@ -145,7 +147,7 @@ def estimate(src, route=None, truncating=False, spectra_kept=False):
         tensor = max(prod(s) for s in shapes) * item
         raw = max(prod(s) for s in shapes) * stored
         bond = max(max(s[0], s[2]) for s in shapes) ** 2 * item
-        store = min(sum(s[0] ** 2 for s in shapes) * item, 64 * 2**20)
+        store = min(sum(s[0] ** 2 for s in shapes) * item, _sweep._STORE_BYTES)
         memory = 2 * (2 * tensor + raw + 3 * bond) + store + (2 * tensor if truncating else 0)
         flops = sum(2 * 2 * s[0] * s[1] * s[2] * (s[0] + s[2]) for s in shapes)
         flops += sum(10 * s[2] ** 3 for s in shapes[:-1])

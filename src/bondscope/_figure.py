@@ -28,6 +28,7 @@ from pathlib import Path
 
 import numpy as np
 
+from ._errors import CheckpointError
 from ._gather import collect, natural_key, same_base
 
 __all__ = ["OKABE_ITO", "KINDS", "plot", "save_figure", "figure_bytes", "entropy_figure",
@@ -79,6 +80,8 @@ _RC = {
     "lines.linewidth": 1.4,
     "lines.markersize": 4.5,
     "svg.fonttype": "none",
+    # fixed salt: the SVG's clip-path ids no longer change from run to run
+    "svg.hashsalt": "bondscope",
     "pdf.fonttype": 42,
 }
 
@@ -169,8 +172,8 @@ def entropy_figure(sources, *, boundary=None, renyi=(), fit=True, title=None, **
     ------
     ValueError
         A boundary other than "open" or "periodic".
-    KeyError
-        A Rényi order the profiles do not hold.
+    CheckpointError
+        A Rényi order a saved profile does not hold.
     """
     from ._scaling import fit_scaling
 
@@ -178,6 +181,14 @@ def entropy_figure(sources, *, boundary=None, renyi=(), fit=True, title=None, **
         raise ValueError(f"boundary must be 'open' or 'periodic', found {boundary!r}")
     orders = [str(a) for a in renyi]
     entries = collect(sources, renyi=orders or None, **options)
+    for entry in entries:
+        missing = [a for a in orders if _order_key(a, entry.profile) is None]
+        if missing:
+            raise CheckpointError(
+                f"{entry.origin or entry.label}: no Rényi entropy of order "
+                f"{', '.join(missing)} in this profile (present: "
+                f"{', '.join(entry.profile.renyi_orders) or 'none'}); rerun `bondscope profile "
+                f"CHECKPOINT --renyi {','.join(orders)} -o PROFILE`")
     scales, base = same_base(entries)
     unit = entropy_unit(base)
     with _style():
@@ -206,8 +217,8 @@ def entropy_figure(sources, *, boundary=None, renyi=(), fit=True, title=None, **
                 window = (min(window[0], at[0]), max(window[1], at[-1]))
             ax.plot(x, s, lw=0.9, label=label, ms=_marker_size(len(x)), **look)
             for k, a in enumerate(orders):
-                ax.plot(x, prof.renyi(a) * scale, color=look["color"], lw=0.9,
-                        ls=_RENYI_DASHES[k % 2])
+                ax.plot(x, prof.renyi(_order_key(a, prof)) * scale, color=look["color"],
+                        lw=0.9, ls=_RENYI_DASHES[k % 2])
         for k, a in enumerate(orders):
             ax.plot([], [], color=_FAINT, lw=0.9, ls=_RENYI_DASHES[k % 2],
                     label=f"Rényi $S_{{{_order_text(a)}}}$")
@@ -240,6 +251,21 @@ def _pm(value, error):
 def _law(boundary):
     return ("S = (c/6) ln[(2N/π) sin(πl/N)] + s₀\n   + parity and 1/x corrections"
             if boundary == "open" else "S = (c/3) ln[(N/π) sin(πl/N)] + s₀")
+
+
+def _order_key(order, prof):
+    """The profile's key for a Rényi order ("2" matches "2.0"), or None."""
+    for key in prof.renyi_orders:
+        if key == order or (_number(key) is not None and _number(key) == _number(order)):
+            return key
+    return None
+
+
+def _number(text):
+    try:
+        return float(text)
+    except ValueError:
+        return None
 
 
 def _order_text(order):

@@ -88,8 +88,8 @@ def _profile_meta(prof):
 
 def _needs_spectra(entry, spectrum):
     if spectrum and not entry.profile.has_spectra:
-        raise CheckpointError(f"{entry.origin or entry.label}: this profile has no Schmidt "
-                              f"values, which this figure needs; {SPECTRUM_HINT}")
+        raise CheckpointError(f"{entry.origin or entry.label}: no Schmidt values in this "
+                              f"profile, which this figure needs; {SPECTRUM_HINT}")
     return entry
 
 

@@ -193,10 +193,14 @@ def _series_html(name, members, boundary):
                                   "Entropy S(l, t) through the series",
                                   f"entropy heatmap of series {name}", title=""))
     elif len(members) > 1:
+        weighed = all(isinstance(m.meta.get("max_discarded_weight",
+                                            m.profile.get("discarded_weight")), (int, float))
+                      for m in members)
         parts.append(_figure_html(_figure.convergence_figure, members,
-                                  "Middle-cut entropy against the discarded weight, "
-                                  "extrapolated to zero", f"convergence of series {name}",
-                                  title=""))
+                                  "Middle-cut entropy against the "
+                                  f"{'discarded weight' if weighed else 'inverse bond dimension'}"
+                                  ", extrapolated to zero", f"convergence of series {name}",
+                                  against="weight" if weighed else "bond", title=""))
     return "\n".join(parts)
 
 

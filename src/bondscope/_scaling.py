@@ -80,7 +80,10 @@ def parse_window(window, sites):
     return int(a), int(b)
 
 
-def _chord(l, sites, boundary):
+def _chord(l, sites, boundary, walls=False):
+    """Chord length; ``walls``: open chain with its walls half a site beyond the ends."""
+    if walls:
+        return 2.0 * (sites + 1) / np.pi * np.sin(np.pi * (l + 0.5) / (sites + 1))
     scale = 2.0 * sites if boundary == "open" else float(sites)
     return scale / np.pi * np.sin(np.pi * l / sites)
 
@@ -102,8 +105,8 @@ def _lstsq(A, y):
     return coef, resid, cov
 
 
-def _fit(l, S, sites, boundary, corrections, exponent):
-    x = _chord(l, sites, boundary)
+def _fit(l, S, sites, boundary, corrections, exponent, walls=False):
+    x = _chord(l, sites, boundary, walls)
     return _lstsq(_design(l, x, boundary, corrections, exponent), S)
 
 
@@ -192,12 +195,15 @@ def fit_scaling(source, *, boundary="open", window=None, corrections=None, parit
     Notes
     -----
     Linear least squares: O(n p^2) for n cuts and p <= 4 parameters, run
-    once per window.  ``central_charge_error`` is the quadrature sum of the
-    fit's standard error (covariance scaled by the residual variance) and
-    the largest change of c over the windows trimmed by an eighth at the
-    left, right or both ends (and, for the default window, the one with
-    half the margin): the residuals of exact critical data are systematic,
-    so the window spread is usually the larger part.  Entropies are
+    once per window.  ``central_charge_error`` is the quadrature sum of
+    three parts: the fit's standard error (covariance scaled by the
+    residual variance); the largest change of c over the windows trimmed
+    by an eighth at the left, right or both ends (and, for the default
+    window, the one with half the margin); and, for open chains, the
+    change of c when the chord is taken for a chain of L + 1 with the cut
+    at l + 1/2 (walls half a site beyond the end sites), the finite-size
+    ambiguity of the chord.  The residuals of exact critical data are
+    systematic, so the last two usually dominate.  Entropies are
     converted from the document's ``log_base`` to nats.
 
     References
@@ -229,11 +235,12 @@ def fit_scaling(source, *, boundary="open", window=None, corrections=None, parit
     a, b = user if user is not None else (margin, sites - margin)
     n_par = 2 + len(corrections)
 
-    def run(lo, hi):
+    def run(lo, hi, walls=False):
         sel = (l_all >= lo) & (l_all <= hi)
         if sel.sum() < n_par + 1:
             return None
-        return sel, _fit(l_all[sel], S_all[sel], sites, boundary, corrections, parity_exponent)
+        return sel, _fit(l_all[sel], S_all[sel], sites, boundary, corrections, parity_exponent,
+                         walls)
 
     best = run(a, b)
     if best is None:
@@ -249,6 +256,7 @@ def fit_scaling(source, *, boundary="open", window=None, corrections=None, parit
         if alt is not None:
             others.append({"window": [lo, hi], "central_charge": float(alt[1][0][0])})
     spread = max((abs(o["central_charge"] - c) for o in others), default=0.0)
+    length = abs(float(run(a, b, walls=True)[1][0][0]) - c) if boundary == "open" else 0.0
     local_dims = prof.local_dims
     if local_dims is None and local_dim is not None:
         local_dims = [local_dim] * sites if np.isscalar(local_dim) else list(local_dim)
@@ -262,8 +270,9 @@ def fit_scaling(source, *, boundary="open", window=None, corrections=None, parit
         "corrections": list(corrections),
         "parity_exponent": float(parity_exponent),
         "central_charge": c,
-        "central_charge_error": float(math.hypot(fit_err, spread)),
-        "error_parts": {"fit": fit_err, "window": float(spread), "windows": others},
+        "central_charge_error": float(math.sqrt(fit_err ** 2 + spread ** 2 + length ** 2)),
+        "error_parts": {"fit": fit_err, "window": float(spread), "length": length,
+                        "windows": others},
         "constant": float(coef[1]),
         "amplitudes": {name: float(v) for name, v in zip(corrections, coef[2:])},
         "units": "nats",

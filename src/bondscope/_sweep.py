@@ -26,7 +26,7 @@ from ._measure import discarded_weight, kept_rank, resolution_floor
 __all__ = ["SweepResult", "chain_spectra", "amplitude_spectra", "BondStore", "choose_route"]
 
 # In-memory budget for bond matrices before they spill to the scratch directory.
-_STORE_BYTES = 64 * 2**20
+_STORE_BYTES = 32 * 2**20
 # Up to this many amplitudes the "auto" route takes per-cut SVDs (accurate, and cheap
 # at this size); above it the Gram route is faster (measured: scripts/bench.py).
 _SVD_AUTO_SIZE = 2**14
@@ -61,7 +61,7 @@ class BondStore:
     scratch : str or None
         Directory for spilled matrices (a private subdirectory is made and removed).
     budget : int, optional
-        Bytes kept in memory before spilling (default 64 MiB).
+        Bytes kept in memory before spilling (default 32 MiB).
 
     Notes
     -----
@@ -348,7 +348,7 @@ def chain_spectra(src, *, bond_dim=None, weight_tol=None, scratch=None, tick=Non
 
     Memory: per running sweep one site tensor and its product with a bond
     matrix (O(d chi^2) each), plus the bond matrices waiting for their partner
-    in a :class:`BondStore`, which spills to ``scratch`` past 64 MiB; so the
+    in a :class:`BondStore`, which spills to ``scratch`` past 32 MiB; so the
     peak does not grow with N.  Each tensor is read twice, once per sweep.
 
     Successive truncation keeps, at each cut from the left, the leading

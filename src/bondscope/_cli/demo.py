@@ -28,17 +28,22 @@ def run(args):
     import h5py
 
     from .._pipeline import profile
+    from .._scaling import fit_scaling
     from .._text import profile_table
     from ._warnings import quiet_warnings
 
     path = demo_checkpoint()
     with h5py.File(path, "r") as f:
-        about = f.attrs.get("scenario", "")
+        about = [str(f.attrs[k]) for k in ("lab", "run_id", "description") if k in f.attrs]
     if about:
-        print(f"demo: {about}")
+        print("demo checkpoint: " + "; ".join(about))
     with quiet_warnings():
         prof = profile(path, renyi=["2", "inf"], spectrum=8, bond_dim=16, progress=True)
     prof.save(args.output, protect=[path])
     print(profile_table(prof))
+    fit = fit_scaling(prof, boundary="open")
+    print(f"scaling law {fit['law']}: central charge c = {fit['central_charge']:.4f} "
+          f"+- {fit['central_charge_error']:.4f} (open-chain fit over cuts "
+          f"{fit['window'][0]}..{fit['window'][1]})")
     print(f"profile written to {args.output}")
     return 0
