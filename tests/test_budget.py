@@ -124,6 +124,13 @@ def test_total_target(split):
                 <= sum(c["bond_dimension"] for c in equal["cuts"]))
 
 
+def test_zero_target_keeps_every_stored_value():
+    # the squares of a computed spectrum sum to 1 up to rounding, which is not a dropped weight
+    prof = bondscope.profile(chain(19, [2] * 8, [2, 4, 8, 16, 8, 4, 2]), spectrum=True)
+    res = bond_budget(prof, target=0.0)
+    assert [c["bond_dimension"] for c in res["cuts"]] == [len(v) for v in prof.spectra]
+
+
 def test_top_k_spectrum_counts_the_unstored_weight():
     # weights 0.5, 0.3 stored, 0.2 left out of the list
     d = spectra_doc([np.sqrt([0.5, 0.3])], local_dims=[2, 2])

@@ -101,6 +101,18 @@ def test_per_cut_weights_take_precedence(runs):
     assert res["extrapolation"]["errors"][4] is None
 
 
+def test_what_if_truncation_fields_are_not_the_runs_weight(runs):
+    # `profile --bond-dim` writes per-cut weights of a truncation it did not apply
+    docs = json.loads(json.dumps(runs[:2]))
+    for k, d in enumerate(docs):
+        d["truncation"] = {"bond_dim": 1, "infidelity": 0.5, "bound": 0.6}
+        for c in d["cuts"]:
+            c["discarded_weight"] = 0.5
+    res = compare_profiles(docs)
+    assert res["extrapolation"]["weight_sources"] == ["discarded_weight"] * 2
+    assert res["extrapolation"]["weights"][0][0] == runs[0]["discarded_weight"]
+
+
 def test_no_weights_no_extrapolation(runs):
     docs = json.loads(json.dumps(runs[:2]))
     for d in docs:

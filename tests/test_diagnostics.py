@@ -30,7 +30,7 @@ def _profile(name):
         # PRL 59, 799 (1987)), the Haldane phase (Pollmann et al., PRB 81, 064439 (2010))
         "aklt": lambda: states.aklt(6),
         # cluster state: one ebit across every cut (Hein, Eisert, Briegel, PRA 69, 062311
-        # (2004)), a Z2 x Z2 symmetry-protected phase
+        # (2004)), a Z2 x Z2 symmetry-protected phase (from memory)
         "cluster": lambda: states.cluster(6),
         # GHZ on qutrits: three equal weights (common practice)
         "ghz3": lambda: states.ghz(5, d=3),

@@ -105,7 +105,7 @@ def _page(L, seed):
 # the scaling law: gapped chains saturate (area), critical ones grow as ln l, random
 # states follow the Page curve (Page, PRL 71, 1291 (1993))
 LAWS = [
-    ("ising", dict(L=60, g=1.5), "area"),          # off-critical paramagnet, xi ~ 2.5 sites
+    ("ising", dict(L=60, g=1.5), "area"),          # paramagnet, xi = 1/ln g ~ 2.5 (from memory)
     ("ising", dict(L=60, g=1.2), "area"),          # closer to the critical point
     ("xx", dict(L=200), "logarithmic"),            # critical, c = 1
     ("page", dict(L=12, seed=3), "volume"),        # Haar-random state of 12 qubits

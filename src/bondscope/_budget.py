@@ -7,7 +7,7 @@ from ._diagnostics import as_profile
 __all__ = ["bond_budget", "SPLITS"]
 
 SPLITS = ("equal", "pooled")
-# sum of squares above 1 by more than this is not the spectrum of a normalised state
+# sum of squares off 1 by less than this is rounding; above 1 by more is not normalised
 _NORM_SLACK = 1e-8
 
 
@@ -19,9 +19,9 @@ def _tails(values, where):
         raise ValueError(f"{where}: the squared Schmidt values sum to {total:.12g} > 1; spectra "
                          "must be of the normalised state")
     # what a top-K list leaves out is dropped too
-    unstored = max(0.0, 1.0 - total)
+    unstored = 1.0 - total if 1.0 - total > _NORM_SLACK else 0.0
     tail = np.concatenate([np.cumsum(w[::-1])[::-1], [0.0]]) + unstored
-    return tail, unstored
+    return tail
 
 
 def _smallest_rank(tail, eps):
@@ -104,9 +104,9 @@ def bond_budget(source, *, target=None, total=None, split="equal", dtype=None, l
     weights.  The current bonds are ``cuts[].bond_dimension`` (the length
     of the stored spectrum where absent).  A stored top-K spectrum counts
     the weight it leaves out (1 - sum lambda^2) as discarded at every
-    rank.  Sweep cost is modelled as sum_i m_i n_i min(m_i, n_i) with
-    m_i = chi_{i-1} d_i, n_i = chi_i: the QR or SVD of each site matrix,
-    O(d chi^3) per site.
+    rank (a shortfall below 1e-8 is taken as rounding).  Sweep cost is
+    modelled as sum_i m_i n_i min(m_i, n_i) with m_i = chi_{i-1} d_i,
+    n_i = chi_i: the QR or SVD of each site matrix, O(d chi^3) per site.
 
     References
     ----------
@@ -125,7 +125,7 @@ def bond_budget(source, *, target=None, total=None, split="equal", dtype=None, l
     prof = as_profile(source, spectra=True)
     cuts = sorted(prof.cuts, key=lambda c: c["position"])
     where = prof.source or "profile"
-    tails = [_tails(c["schmidt_values"], f"{where}: cut {c['position']}")[0] for c in cuts]
+    tails = [_tails(c["schmidt_values"], f"{where}: cut {c['position']}") for c in cuts]
     if target is not None or split == "equal":
         per_cut = eps if target is not None else eps / max(1, len(cuts))
         chis = []

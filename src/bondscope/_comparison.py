@@ -111,10 +111,6 @@ def _number(value):
 
 def _run_weight(prof, meta):
     """A run-level discarded weight and where it came from, or (None, None)."""
-    trunc = prof.truncation or {}
-    for key in ("infidelity", "bound"):
-        if _number(trunc.get(key)):
-            return float(trunc[key]), f"truncation.{key}"
     for key in ("max_discarded_weight", "discarded_weight"):
         if _number(prof.get(key)):
             return float(prof[key]), key
@@ -129,7 +125,8 @@ def _weights(profs, metas, positions):
     for prof, meta in zip(profs, metas):
         by_pos = {c["position"]: c.get("discarded_weight") for c in prof.cuts}
         cut_w = [by_pos.get(p) for p in positions]
-        if all(_number(w) for w in cut_w):
+        # with a `truncation` object they are of a what-if truncation, not of the run
+        if prof.truncation is None and all(_number(w) for w in cut_w):
             rows.append(np.array(cut_w, dtype=float))
             sources.append("cuts.discarded_weight")
             continue
@@ -203,10 +200,11 @@ def compare_profiles(sources, *, tol=1e-3, series="auto", names=None, meta=None)
     by least squares over the runs and reports S0, the entropy at zero
     discarded weight w (linear in w: common practice in DMRG).  The weight
     of a run at a cut is its ``cuts[].discarded_weight`` when every common
-    cut has one, else the first of the run's ``truncation.infidelity``,
-    ``truncation.bound``, top-level ``max_discarded_weight`` or
-    ``discarded_weight``, or its checkpoint's ``max_discarded_weight``
-    attribute, used at every cut.  The middle growth rate is the least-squares slope dS/dt of the
+    cut has one and the document has no ``truncation`` object (bondscope
+    writes both for a what-if truncation of the profiled state, whose
+    entropies are untruncated); else the run's top-level
+    ``max_discarded_weight`` or ``discarded_weight``, or its checkpoint's
+    ``max_discarded_weight`` attribute, used at every cut.  The middle growth rate is the least-squares slope dS/dt of the
     cut nearest N/2 over all times.
 
     References

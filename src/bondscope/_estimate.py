@@ -95,16 +95,23 @@ _RATE = []
 
 
 def _flop_rate():
-    """Measured matrix-multiply rate of this machine (flop/s), once per process."""
+    """Measured matrix-multiply rate of this machine (flop/s), once per process.
+
+    Notes
+    -----
+    One warm-up and two timed 256 x 256 products: a few milliseconds, which
+    keeps ``bondscope inspect`` quick (scripts/bench.py startup).
+    """
     if not _RATE:
-        a = np.random.default_rng(0).standard_normal((384, 384))
+        n = 256
+        a = np.random.default_rng(0).standard_normal((n, n))
         a @ a
         t = time.perf_counter()
-        for _ in range(3):
+        for _ in range(2):
             a @ a
         dt = max(time.perf_counter() - t, 1e-6)
         # factorisations run well below the multiply peak; 1/4 is common practice
-        _RATE.append(3 * 2 * 384**3 / dt / 4)
+        _RATE.append(2 * 2 * n**3 / dt / 4)
     return _RATE[0]
 
 

@@ -180,8 +180,8 @@ def fit_scaling(source, *, boundary="open", window=None, corrections=None, parit
     Returns
     -------
     dict
-        ``central_charge``, ``central_charge_error`` (fit and window parts
-        in ``error_parts``), ``constant`` (s0, nats), ``amplitudes`` of the
+        ``central_charge``, ``central_charge_error`` (its fit, window and
+        length parts in ``error_parts``), ``constant`` (s0, nats), ``amplitudes`` of the
         corrections, ``boundary``, ``window``, ``positions``, ``residuals``
         (nats, per position), ``rms_residual``, ``law`` ("area",
         "logarithmic" or "volume") with ``law_evidence``; see
@@ -217,6 +217,8 @@ def fit_scaling(source, *, boundary="open", window=None, corrections=None, parit
         raise ValueError(f"boundary must be one of {BOUNDARIES}, found {boundary!r}")
     if corrections is None:
         corrections = CORRECTIONS if boundary == "open" else ()
+    elif isinstance(corrections, str):
+        corrections = (corrections,)
     corrections = tuple(dict.fromkeys(corrections))
     unknown = [c for c in corrections if c not in CORRECTIONS]
     if unknown:
@@ -227,6 +229,11 @@ def fit_scaling(source, *, boundary="open", window=None, corrections=None, parit
     sites = prof.sites
     if sites < 3:
         raise ValueError(f"a scaling fit needs at least 3 sites, the profile has {sites}")
+    local_dims = prof.local_dims
+    if local_dims is None and local_dim is not None:
+        local_dims = [local_dim] * sites if np.isscalar(local_dim) else list(local_dim)
+    if local_dims is not None and len(local_dims) != sites:
+        raise ValueError(f"{len(local_dims)} local dimensions for {sites} sites")
     order = np.argsort(prof.positions)
     l_all = prof.positions[order]
     S_all = prof.entropies[order] * nats_per_unit(prof)
@@ -257,11 +264,6 @@ def fit_scaling(source, *, boundary="open", window=None, corrections=None, parit
             others.append({"window": [lo, hi], "central_charge": float(alt[1][0][0])})
     spread = max((abs(o["central_charge"] - c) for o in others), default=0.0)
     length = abs(float(run(a, b, walls=True)[1][0][0]) - c) if boundary == "open" else 0.0
-    local_dims = prof.local_dims
-    if local_dims is None and local_dim is not None:
-        local_dims = [local_dim] * sites if np.isscalar(local_dim) else list(local_dim)
-    if local_dims is not None and len(local_dims) != sites:
-        raise ValueError(f"{len(local_dims)} local dimensions for {sites} sites")
     law, evidence = _law(l_all[sel], S_all[sel], sites, boundary, c, local_dims)
     out = {
         "boundary": boundary,

@@ -47,16 +47,16 @@ def run(args):
         window = parse_window(args.window, prof.sites)
     except ValueError as exc:
         raise UsageError(f"--window: {exc}") from None
-    local_dim = args.local_dim if args.local_dim is not None else None
     res = fit_scaling(prof, boundary=args.boundary, window=window, corrections=args.corrections,
-                      parity_exponent=args.parity_exponent, local_dim=local_dim,
+                      parity_exponent=args.parity_exponent, local_dim=args.local_dim,
                       spectrum_report=args.spectrum_report, degeneracy_tol=args.degeneracy_tol)
     if args.json:
         print_json(res)
         return 0
     a, b = res["window"]
+    parts = res["error_parts"]
     print(f"central charge  {res['central_charge']:.4f} +- {res['central_charge_error']:.4f}"
-          f"  (fit {res['error_parts']['fit']:.2g}, window {res['error_parts']['window']:.2g})")
+          f"  (fit {parts['fit']:.2g}, window {parts['window']:.2g}, length {parts['length']:.2g})")
     print(f"constant        {res['constant']:.4f} nats")
     print(f"boundary        {res['boundary']}, window {a}:{b} ({len(res['positions'])} cuts), "
           f"corrections {', '.join(res['corrections']) or 'none'}")
