@@ -36,7 +36,6 @@ import subprocess
 import sys
 import tempfile
 import textwrap
-from math import prod
 from pathlib import Path
 
 import numpy as np

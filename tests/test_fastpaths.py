@@ -21,7 +21,7 @@ from threadpoolctl import threadpool_limits
 import bondscope
 from bondscope import _sweep
 from bondscope._errors import CheckpointError
-from bondscope._source import amplitudes_from_array, chain_from_arrays
+from bondscope._source import chain_from_arrays
 from builders import contract, direct_spectra, random_chain, scramble_gauge, write_chain
 
 SRC = Path(__file__).resolve().parents[1] / "src"
