@@ -101,9 +101,9 @@ def test_concurrent_sweeps_match_sequential_and_svd(dims, bonds, dtype, scramble
         tensors = scramble_gauge(rng, tensors)
     src = chain_from_arrays(tensors)
     with _sweep.BondStore() as store:
-        both = _normalised(_sweep._concurrent_chain(src, store, lambda: None))
+        both = _normalised(_sweep._concurrent_chain(src, store, lambda: None, _sweep._product_values))
     with _sweep.BondStore() as store:
-        plain = _normalised(_sweep._sequential_chain(src, store, lambda: None)[0])
+        plain = _normalised(_sweep._sequential_chain(src, store, lambda: None, _sweep._product_values)[0])
     tol = 200 * _eps(dtype) * max(bonds) * max(dims)
     _close(both, ref, tol)
     _close(both, plain, tol)
@@ -142,7 +142,7 @@ def test_concurrent_sweeps_spill_and_clean_up(tmp_path, monkeypatch):
     ref = direct_spectra(contract(tensors), dims)
     with _sweep.BondStore(str(tmp_path / "scr")) as store:
         got = _normalised(_sweep._concurrent_chain(chain_from_arrays(tensors), store,
-                                                   lambda: None))
+                                                   lambda: None, _sweep._product_values))
         assert store.spilled
     _close(got, ref, 1e-13)
     assert list((tmp_path / "scr").iterdir()) == []
@@ -159,7 +159,29 @@ def test_failure_in_either_sweep_stops_both(bad_site):
     tensors[bad_site][0, 0, 0] = np.nan
     with _sweep.BondStore() as store:
         with pytest.raises(CheckpointError, match="NaN"):
-            _sweep._concurrent_chain(chain_from_arrays(tensors), store, lambda: None)
+            _sweep._concurrent_chain(chain_from_arrays(tensors), store, lambda: None,
+                                     _sweep._product_values)
+
+
+@pytest.mark.parametrize("processes", [False, True])   # threads of this process, then workers
+def test_bond_values_as_dask_tasks(processes):
+    # with an active client the per-cut SVDs run as its tasks; reference: scipy svdvals
+    distributed = pytest.importorskip("distributed")
+    rng = np.random.default_rng(25)
+    dims, bonds = [2] * 8, [2, 4, 8, 16, 8, 4, 2]
+    tensors = random_chain(rng, dims, bonds, np.complex128)
+    ref = direct_spectra(contract(tensors), dims)
+    with distributed.LocalCluster(n_workers=1, threads_per_worker=1, processes=processes,
+                                  dashboard_address=None) as cluster, \
+            distributed.Client(cluster) as client:
+        assert _sweep._dask_client() is client
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", bondscope.UnnormalisedStateWarning)
+            prof = bondscope.profile(tensors, spectrum=True)
+        prefixes = client.run_on_scheduler(lambda dask_scheduler: list(dask_scheduler.task_prefixes))
+    assert "product_values" in prefixes          # dask keys drop the leading underscore
+    _close(prof.spectra, ref, 200 * _eps(np.float64) * 16 * 2)
+    assert _sweep._dask_client() is None
 
 
 STATES = [

@@ -153,6 +153,46 @@ def _svdvals(a):
     return svdvals(a, overwrite_a=True, check_finite=False)
 
 
+def _product_values(left, right):
+    """Singular values of left @ right (the bond matrix of one cut)."""
+    return _svdvals(left @ right)
+
+
+def _dask_client():
+    """The active dask.distributed client of this process, or None.
+
+    Only a client the caller already made counts (dask is never imported here),
+    and not inside a Dask worker, whose task is already one unit of parallel work.
+    """
+    import sys
+
+    if "distributed" not in sys.modules:
+        return None
+    from distributed import get_client, get_worker
+
+    try:
+        get_worker()
+        return None
+    except ValueError:
+        pass
+    try:
+        return get_client()
+    except ValueError:
+        return None
+
+
+def _bond_values(client):
+    """Where the per-cut SVDs run: inline, or as tasks of an active Dask client."""
+    if client is None:
+        return _product_values
+    return lambda left, right: client.submit(_product_values, left, right, pure=False)
+
+
+def _gathered(raw):
+    """Per-cut values, waiting for any that are Dask futures."""
+    return [v.result() if hasattr(v, "result") else v for v in raw]
+
+
 def _lq_step(a, env):
     """Bond matrix of the right-to-left sweep: A_i L_{i+1}, reshaped (left, d right), = L_i Q_i.
 
@@ -210,7 +250,7 @@ def _locked(tick):
     return call
 
 
-def _sequential_chain(src, store, tick, bond_dim=None, weight_tol=None):
+def _sequential_chain(src, store, tick, values, bond_dim=None, weight_tol=None):
     """Singular values of R_i L_i per cut, right-to-left sweep then left-to-right sweep.
 
     With ``bond_dim`` or ``weight_tol``, the left-to-right sweep also compresses
@@ -234,7 +274,7 @@ def _sequential_chain(src, store, tick, bond_dim=None, weight_tol=None):
             w = u.conj().T @ block
             eps.append(e)
         r = _qr_step(r, a)
-        raw.append(_svdvals(r @ env))
+        raw.append(values(r, env))
         tick()
     return raw, eps
 
@@ -265,7 +305,7 @@ def _until_failure(job, stop):
         raise
 
 
-def _concurrent_chain(src, store, tick):
+def _concurrent_chain(src, store, tick, values):
     """The two sweeps of :func:`_sequential_chain` run side by side, one per thread.
 
     Neither sweep needs the other's results, so both start at once, the
@@ -288,7 +328,7 @@ def _concurrent_chain(src, store, tick):
             env = _lq_step(src.tensor(i), env)
             waiting = meet(i, "L", env)
             if waiting is not None:
-                raw[i - 1] = _svdvals(waiting @ env)
+                raw[i - 1] = values(waiting, env)
             tick()
 
     def rightward():
@@ -299,7 +339,7 @@ def _concurrent_chain(src, store, tick):
             r = _qr_step(r, src.tensor(i))
             waiting = meet(i + 1, "R", r)
             if waiting is not None:
-                raw[i] = _svdvals(r @ waiting)
+                raw[i] = values(r, waiting)
             tick()
 
     with ThreadPoolExecutor(1, thread_name_prefix="bondscope-sweep") as pool:
@@ -345,6 +385,9 @@ def chain_spectra(src, *, bond_dim=None, weight_tol=None, scratch=None, tick=Non
     (each with half the BLAS threads), since neither needs the other's results;
     each cut's SVD is done by the sweep that reaches the cut second.  With
     truncation tracking, or one BLAS thread, they run one after the other.
+    When the calling process has an active dask.distributed client (and is
+    not itself a Dask worker), the per-cut SVDs are submitted as tasks of that
+    client instead, each shipping two chi x chi matrices.
 
     Memory: per running sweep one site tensor and its product with a bond
     matrix (O(d chi^2) each), plus the bond matrices waiting for their partner
@@ -365,11 +408,13 @@ def chain_spectra(src, *, bond_dim=None, weight_tol=None, scratch=None, tick=Non
     """
     track = bond_dim is not None or weight_tol is not None
     tick = _locked(tick)
+    values = _bond_values(_dask_client())
     with BondStore(scratch) as store, _lanes() as lanes:
         if track or lanes < 2:
-            raw, eps = _sequential_chain(src, store, tick, bond_dim, weight_tol)
+            raw, eps = _sequential_chain(src, store, tick, values, bond_dim, weight_tol)
         else:
-            raw, eps = _concurrent_chain(src, store, tick), []
+            raw, eps = _concurrent_chain(src, store, tick, values), []
+    raw = _gathered(raw)
     spectra, floors, norm = [], [], None
     for i, s in enumerate(raw):
         s, total = _normalised(s, src.name)
