@@ -17,23 +17,11 @@ from scipy.linalg import svdvals
 import bondscope
 from bondscope._batch import KILL_ENV, collect_inputs, parse_shard, result_key, run_batch
 from bondscope._cli import main
+from bench_batch import random_mps
 
 ROOT = Path(__file__).resolve().parents[1]
 # fields that differ between two runs of the same work
 VOLATILE = ("status", "wall_seconds")
-
-
-def random_mps(rng, sites, chi, d=2):
-    """Random normalised MPS (left, phys, right), bonds min(chi, d^distance to an end)."""
-    bonds = [1] + [min(chi, d ** min(i, sites - i)) for i in range(1, sites)] + [1]
-    tensors = [rng.standard_normal((bonds[i], d, bonds[i + 1])) for i in range(sites)]
-    for i in range(sites - 1):  # left-orthonormalise; the norm moves into the last tensor
-        left, phys, right = tensors[i].shape
-        q, rest = np.linalg.qr(tensors[i].reshape(left * phys, right))
-        tensors[i] = q.reshape(left, phys, -1)
-        tensors[i + 1] = np.tensordot(rest, tensors[i + 1], axes=(1, 0))
-    tensors[-1] /= np.linalg.norm(tensors[-1])
-    return tensors
 
 
 def write_checkpoint(path, tensors, **attrs):

@@ -24,17 +24,11 @@ def add_arguments(p):
     add_measure_arguments(p)
 
 
-def _size(n):
-    for unit in ("B", "KiB", "MiB", "GiB", "TiB"):
-        if n < 1024 or unit == "TiB":
-            return f"{n:.4g} {unit}"
-        n /= 1024
-
-
 def run(args):
     import numpy as np
 
     from .._budget import bond_budget
+    from .._estimate import format_bytes
 
     try:
         np.dtype(args.dtype)
@@ -57,7 +51,7 @@ def run(args):
     if res["memory_bytes"] is None:
         print("cost: unknown without local dimensions (give --local-dim)")
     else:
-        print(f"memory {_size(res['memory_bytes'])} ({res['dtype']}), "
+        print(f"memory {format_bytes(res['memory_bytes'])} ({res['dtype']}), "
               f"{res['memory_ratio']:.3g} x current; sweep cost {res['sweep_cost_ratio']:.3g} x "
               "current")
     return 0
