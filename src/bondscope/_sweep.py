@@ -2,11 +2,10 @@
 
 Kernels here trust their inputs: sources are validated at the boundary.
 
-Two lanes of linear algebra run side by side when the BLAS may use two or more
-threads (each lane then gets half of them): the two MPS sweeps, which are
-independent until their bond matrices meet, and, for state vectors, the largest
-Hermitian eigenproblem beside the rest of the work.  One BLAS thread means one
-lane, the plain sequential order.
+The two MPS sweeps, independent until their bond matrices meet, run side by
+side in two lanes when the BLAS may use two or more threads (each lane then
+gets half of them); one BLAS thread means one lane, the plain sequential order.
+State vectors take one large BLAS/LAPACK call at a time with all the threads.
 """
 
 import math
@@ -469,45 +468,35 @@ def _eig_spectrum(low, where):
     return _normalised(np.sqrt(np.clip(w[::-1], 0.0, None)), where)[0]
 
 
-def _gram_spectra(psi, dims, where, scale, lanes):
+def _gram_spectra(psi, dims, where, scale):
     """All cuts from the two reduced density matrices at the middle and their partial traces.
 
     Partial traces keep the valid triangle: tracing a factor out of a matrix whose
     lower triangle is correct gives a matrix whose lower triangle is correct.
-    With two lanes the largest eigenproblem (the middle cut's) runs in a second
-    thread beside all the rest.  The next partial trace is always taken before a
-    matrix goes to the eigensolver, which destroys it, so at most three reduced
-    density matrices are alive at once.
+    The next partial trace is always taken before a matrix goes to the
+    eigensolver, which destroys it, so at most two reduced density matrices are
+    alive at once.  Every step is one large BLAS/LAPACK call that uses all the
+    BLAS threads (measured faster than splitting them over concurrent
+    eigenproblems: scripts/bench.py state).
     """
     n, total, m = len(dims), prod(dims), _middle(dims)
     spectra, sizes = [None] * (n - 1), [0] * (n - 1)
-    pool = ThreadPoolExecutor(1, thread_name_prefix="bondscope-eig") if lanes > 1 else None
-    try:
-        left = prod(dims[:m])
-        rho = _gram(psi.reshape(left, total // left), "left", scale)
-        for pos in range(m, 0, -1):
-            dim, d = prod(dims[:pos]), dims[pos - 1]
-            nxt = np.einsum("axbx->ab", rho.reshape(dim // d, d, dim // d, d)) \
-                if pos > 1 else None
-            if pos == m and pool is not None:
-                middle = pool.submit(_eig_spectrum, rho, where)
-            else:
-                spectra[pos - 1] = _eig_spectrum(rho, where)
-            sizes[pos - 1], rho = dim, nxt
-        if m < n - 1:
-            right = prod(dims[m + 1:])
-            rho = _gram(psi.reshape(total // right, right), "right", scale)
-            for pos in range(m + 1, n):
-                dim, d = prod(dims[pos:]), dims[pos]
-                nxt = np.einsum("xaxb->ab", rho.reshape(d, dim // d, d, dim // d)) \
-                    if pos < n - 1 else None
-                spectra[pos - 1], sizes[pos - 1] = _eig_spectrum(rho, where), dim
-                rho = nxt
-        if pool is not None:
-            spectra[m - 1] = middle.result()
-    finally:
-        if pool is not None:
-            pool.shutdown()
+    left = prod(dims[:m])
+    rho = _gram(psi.reshape(left, total // left), "left", scale)
+    for pos in range(m, 0, -1):
+        dim, d = prod(dims[:pos]), dims[pos - 1]
+        nxt = np.einsum("axbx->ab", rho.reshape(dim // d, d, dim // d, d)) if pos > 1 else None
+        spectra[pos - 1], sizes[pos - 1] = _eig_spectrum(rho, where), dim
+        rho = nxt
+    if m < n - 1:
+        right = prod(dims[m + 1:])
+        rho = _gram(psi.reshape(total // right, right), "right", scale)
+        for pos in range(m + 1, n):
+            dim, d = prod(dims[pos:]), dims[pos]
+            nxt = np.einsum("xaxb->ab", rho.reshape(d, dim // d, d, dim // d)) \
+                if pos < n - 1 else None
+            spectra[pos - 1], sizes[pos - 1] = _eig_spectrum(rho, where), dim
+            rho = nxt
     return spectra, sizes
 
 
@@ -571,9 +560,8 @@ def amplitude_spectra(src, *, route="auto", bond_dim=None, weight_tol=None, tick
     split) while it is diagonalised, and the next two partial traces (1/4 and
     1/16), about 2.3 in all; svd holds the state and one reshaped copy, 2.
     Cost for an even split: gram is two rank-k updates, O(D^{3/2}), and one
-    Hermitian eigenproblem of size sqrt(D) plus smaller ones (the middle one
-    runs in a second thread beside the rest when the BLAS may use two or more
-    threads); svd is a values-only SVD of the same size per cut near the middle.
+    Hermitian eigenproblem of size sqrt(D) plus smaller ones, each with all the
+    BLAS threads; svd is a values-only SVD of the same size per cut near the middle.
 
     References
     ----------
@@ -586,8 +574,7 @@ def amplitude_spectra(src, *, route="auto", bond_dim=None, weight_tol=None, tick
     if not norm > 0:
         raise CheckpointError(f"{src.name}: the state has zero norm")
     if route == "gram":
-        with _lanes() as lanes:
-            spectra, sizes = _gram_spectra(psi, src.local_dims, src.name, 1.0 / norm**2, lanes)
+        spectra, sizes = _gram_spectra(psi, src.local_dims, src.name, 1.0 / norm**2)
     else:
         spectra, sizes = _svd_spectra(psi, src.local_dims, src.name)
     floors = [resolution_floor(s, route, n) for s, n in zip(spectra, sizes)]
