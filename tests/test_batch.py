@@ -364,6 +364,17 @@ def test_series_index(pooled, tmp_path, monkeypatch, grouping, expected):
         assert row["time"] == pytest.approx(0.25 * int(row["source"][-4]))
     times = [m["time"] for m in index["series"][next(iter(expected))]]
     assert times == sorted(times)
+    # each series carries the verdict of `bondscope compare` on its members, or the
+    # reason it has none (the time steps of make_scan have 8, 9 and 10 sites)
+    for name, members in index["series"].items():
+        verdict = index["comparisons"][name]
+        steps = {m["checkpoint"][-4] for m in members}
+        if len(steps) == 1:
+            assert sorted(verdict["runs"]) == sorted(Path(m["checkpoint"]).name
+                                                     for m in members)
+            assert isinstance(verdict["converged"], bool)
+        else:
+            assert "sites" in verdict["error"]
 
 
 @pytest.mark.parametrize("args, words", [

@@ -718,6 +718,21 @@ def _order(row):
             row["bond_dim"] if isinstance(row["bond_dim"], (int, float)) else 0, row["source"])
 
 
+def _compare_series(out, members):
+    """The comparison verdict of one series (``bondscope compare`` on its profiles)."""
+    from ._comparison import checkpoint_meta, compare_profiles
+
+    try:
+        res = compare_profiles([out / m["profile"] for m in members],
+                               names=[Path(m["checkpoint"]).name for m in members],
+                               meta=[checkpoint_meta(m["checkpoint"]) for m in members])
+    except (ValueError, OSError) as exc:
+        return {"error": f"{type(exc).__name__}: {' '.join(str(exc).split())}"}
+    keep = ("series", "runs", "largest_difference", "converged", "threshold", "extrapolation",
+            "growth_rate")
+    return {k: res[k] for k in keep if k in res}
+
+
 def _write_series(out, suffix, rows, group_by):
     series = {}
     for r in sorted(rows, key=_order):
@@ -725,8 +740,10 @@ def _write_series(out, suffix, rows, group_by):
             series.setdefault(r["series"], []).append(
                 {"checkpoint": r["source"], "profile": r["profile"], "time": r["time"],
                  "bond_dim": r["bond_dim"]})
+    comparisons = {name: _compare_series(out, members)
+                   for name, members in sorted(series.items()) if len(members) > 1}
     doc = {"format": SERIES_FORMAT, "version": 1, "group_by": group_by,
-           "series": dict(sorted(series.items()))}
+           "series": dict(sorted(series.items())), "comparisons": comparisons}
     path = out / f"series{suffix}.json"
     text = json.dumps(doc, indent=1, allow_nan=False) + "\n"
     atomic_write(path, lambda tmp: Path(tmp).write_text(text, "utf-8"))
