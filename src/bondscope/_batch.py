@@ -622,7 +622,12 @@ def _alone(task, context):
 
 
 def _dask_results(tasks, scheduler):
-    """Run tasks on a Dask cluster; yields results as they finish."""
+    """Run tasks on a Dask cluster; yields results as they finish.
+
+    A task whose worker died (after the scheduler's own allowed failures) may only
+    have shared that worker with the culprit, so it is resubmitted once; dying
+    again marks it failed.
+    """
     from dask.distributed import Client, as_completed
     from distributed.scheduler import KilledWorker
 
@@ -630,13 +635,20 @@ def _dask_results(tasks, scheduler):
     client = Client(scheduler) if own else scheduler
     try:
         futures = {client.submit(_profile_one, task, pure=False): task for task in tasks}
-        for future in as_completed(futures):
-            task = futures[future]
+        retried = set()
+        pending = as_completed(futures)
+        for future in pending:
+            task = futures.pop(future)
             try:
                 yield future.result()
             except KilledWorker:
-                yield _failure(task, _DIED + "; the cluster gave up after its allowed "
-                               "failures")
+                if task["key"] in retried:
+                    yield _failure(task, _DIED + "; resubmitted once, it died again")
+                else:
+                    retried.add(task["key"])
+                    again = client.submit(_profile_one, task, pure=False)
+                    futures[again] = task
+                    pending.add(again)
             except Exception as exc:
                 yield _failure(task, f"{type(exc).__name__}: {_one_line(exc)}")
             future.release()
