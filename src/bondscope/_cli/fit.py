@@ -55,7 +55,7 @@ def run(args):
         return 0
     a, b = res["window"]
     parts = res["error_parts"]
-    print(f"central charge  {res['central_charge']:.4f} +- {res['central_charge_error']:.4f}"
+    print(f"central charge  {round(res['central_charge'], 4) + 0.0:.4f} +- {res['central_charge_error']:.4f}"
           f"  (fit {parts['fit']:.2g}, window {parts['window']:.2g}, length {parts['length']:.2g})")
     print(f"constant        {res['constant']:.4f} nats")
     print(f"boundary        {res['boundary']}, window {a}:{b} ({len(res['positions'])} cuts), "
