@@ -12,7 +12,8 @@ pytest.importorskip("matplotlib")
 import bondscope  # noqa: E402
 from bondscope import CheckpointError  # noqa: E402
 from bondscope._cli import main  # noqa: E402
-from bondscope._figure import OKABE_ITO, entropy_unit, plot, save_figure  # noqa: E402
+from bondscope._figure import OKABE_ITO, plot, save_figure  # noqa: E402
+from bondscope._text import entropy_unit  # noqa: E402
 from plotdata import PNG_MAGIC, ROOT, batch_dir, series_checkpoints, time_checkpoints  # noqa: E402
 from reference import freefermion, states  # noqa: E402
 

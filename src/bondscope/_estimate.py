@@ -126,7 +126,7 @@ def _rho_sizes(dims):
     return left, right
 
 
-def estimate(src, route=None, truncating=False, spectra_kept=False):
+def estimate(src, route=None, truncating=False):
     """Memory and work of profiling ``src`` (a ChainSource or AmplitudeSource).
 
     Notes

@@ -30,10 +30,10 @@ import numpy as np
 
 from ._errors import CheckpointError
 from ._gather import collect, natural_key, same_base
+from ._text import entropy_unit
 
 __all__ = ["OKABE_ITO", "KINDS", "plot", "save_figure", "figure_bytes", "entropy_figure",
-           "spectrum_figure", "budget_figure", "heatmap_figure", "convergence_figure",
-           "entropy_unit"]
+           "spectrum_figure", "budget_figure", "heatmap_figure", "convergence_figure"]
 
 # Okabe & Ito (2008), in the order curves take them; yellow last (weak on white)
 OKABE_ITO = {
@@ -109,15 +109,6 @@ def _marker_size(n_points):
 
 def _look(i):
     return dict(color=_COLOURS[i % 7], marker=_MARKERS[i % len(_MARKERS)])
-
-
-def entropy_unit(log_base):
-    """'nats', 'bits' or 'log base b' for a profile's logarithm base."""
-    if abs(log_base - math.e) < 1e-12:
-        return "nats"
-    if log_base == 2:
-        return "bits"
-    return f"log base {log_base:g}"
 
 
 def _cut_label(ax):

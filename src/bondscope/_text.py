@@ -1,14 +1,19 @@
 """Plain-text output: the per-cut table and the inspect summary."""
 
+import math
+
 from ._estimate import format_bytes
 
-__all__ = ["profile_table", "inspect_text"]
+__all__ = ["profile_table", "inspect_text", "entropy_unit"]
 
 
-def _unit(profile):
-    base = profile.log_base
-    return "nats" if abs(base - 2.718281828459045) < 1e-12 else \
-        ("bits" if base == 2 else f"log base {base:g}")
+def entropy_unit(log_base):
+    """'nats', 'bits' or 'log base b' for a profile's logarithm base."""
+    if abs(log_base - math.e) < 1e-12:
+        return "nats"
+    if log_base == 2:
+        return "bits"
+    return f"log base {log_base:g}"
 
 
 def profile_table(profile):
@@ -19,7 +24,7 @@ def profile_table(profile):
     lines = [f"{profile.source}",
              f"  {profile.kind}, {profile.sites} sites, local dims {dim_text}, "
              f"{profile.get('dtype', '?')}, norm {profile.norm:.12g}, "
-             f"route {profile.get('route', '?')}, entropies in {_unit(profile)}"]
+             f"route {profile.get('route', '?')}, entropies in {entropy_unit(profile.log_base)}"]
     orders = profile.renyi_orders
     trunc = profile.truncation
     head = ["cut", "bond", "rank", "S"] + [f"S_{a}" for a in orders] + ["floor"]
