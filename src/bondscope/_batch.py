@@ -353,11 +353,11 @@ def _checked_options(options):
 
 def _recorded_options(options):
     """The options that decide a result's content, with defaults filled in, as JSON."""
-    from ._pipeline import _orders
+    from ._pipeline import renyi_orders
 
     full = {k: v for k, v in _profile_parameters().items() if k not in _NEUTRAL}
     full.update({k: v for k, v in options.items() if k not in _NEUTRAL})
-    full["renyi"] = _orders(full["renyi"])
+    full["renyi"] = renyi_orders(full["renyi"])
     if full["spectrum"] is False:
         full["spectrum"] = None
     return json.loads(json.dumps(full))

@@ -9,11 +9,11 @@ from pathlib import Path
 
 import numpy as np
 
-from ._document import FORMAT, VERSION, Profile
+from ._document import FORMAT, VERSION, Profile, parse_log_base
 from ._estimate import check_memory, estimate
 from ._measure import discarded_weight, entropy_measures, kept_rank
 
-__all__ = ["profile", "inspect", "open_any", "UnnormalisedStateWarning"]
+__all__ = ["profile", "inspect", "open_any", "renyi_orders", "UnnormalisedStateWarning"]
 
 # Relative deviation of the norm from 1 above which the user is told, and its
 # floor in units of the stored precision's eps (a float32 state is normalised to ~1e-7).
@@ -25,7 +25,8 @@ class UnnormalisedStateWarning(UserWarning):
     """The stored state was not normalised; the normalised state was profiled."""
 
 
-def _orders(renyi):
+def renyi_orders(renyi):
+    """Rényi orders as the keys they are written under ("2", "0.5", "inf"), validated."""
     if isinstance(renyi, (str, int, float)):
         renyi = [renyi]
     out = []
@@ -43,14 +44,13 @@ def _orders(renyi):
 
 
 def _base(base):
-    if base in ("e", None) or (isinstance(base, (int, float)) and base == math.e):
-        return "e", math.e
+    """(label written to the document, value) of a log base: ("e", e), (2, 2.0), ..."""
     try:
-        value = float(base)
-    except (TypeError, ValueError):
+        value = parse_log_base("e" if base is None else base)
+    except TypeError:
         raise ValueError(f"log base {base!r} is neither 'e' nor a number") from None
-    if not value > 1 or not math.isfinite(value):
-        raise ValueError(f"log base must be 'e' or a number > 1, found {base!r}")
+    if value == math.e:
+        return "e", value
     return (int(value) if value.is_integer() else value), value
 
 
@@ -167,7 +167,7 @@ def profile(source, *, state=None, tensors=None, local_dim=None, axes=None, reny
     """
     from ._sweep import amplitude_spectra, chain_spectra, choose_route
 
-    orders = _orders(renyi)
+    orders = renyi_orders(renyi)
     base_label, base_value = _base(base)
     _check_truncation(bond_dim, weight_tol)
     if spectrum is not None and spectrum is not False and spectrum is not True:

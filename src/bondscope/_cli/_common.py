@@ -32,15 +32,12 @@ def _local_dim(text):
 
 
 def _renyi(text):
-    orders = [t.strip() for t in text.split(",") if t.strip()]
-    for t in orders:
-        try:
-            ok = float(t) >= 0
-        except ValueError:
-            ok = False
-        if not ok:
-            raise UsageError(f"--renyi: order {t!r} is not a number >= 0 or 'inf'")
-    return orders
+    from .._pipeline import renyi_orders
+
+    try:
+        return renyi_orders([t for t in text.split(",") if t.strip()])
+    except ValueError as exc:
+        raise UsageError(f"--renyi: {exc}") from None
 
 
 def _spectrum(text):
