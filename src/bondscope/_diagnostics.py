@@ -11,11 +11,9 @@ from pathlib import Path
 
 import numpy as np
 
-from ._document import Profile, _is_profile_h5, load_profile
+from ._document import Profile, is_saved_profile, load_profile
 
 __all__ = ["spectrum_diagnostics", "as_profile", "require_spectra", "nats_per_unit"]
-
-_PROFILE_SUFFIXES = (".json", ".csv")
 
 
 def as_profile(source, *, spectra=False):
@@ -43,9 +41,7 @@ def as_profile(source, *, spectra=False):
         prof = Profile.from_dict(source)
     elif isinstance(source, (str, os.PathLike)):
         path = Path(source)
-        suffix = path.suffix.lower()
-        if suffix in _PROFILE_SUFFIXES or (suffix in (".h5", ".hdf5") and path.is_file()
-                                           and _is_profile_h5(path)):
+        if is_saved_profile(path):
             prof = load_profile(path)
         else:
             from ._pipeline import profile

@@ -22,7 +22,8 @@ import numpy as np
 
 from ._errors import CheckpointError
 
-__all__ = ["FORMAT", "VERSION", "Profile", "load_profile", "parse_log_base", "atomic_write"]
+__all__ = ["FORMAT", "VERSION", "Profile", "load_profile", "is_saved_profile", "parse_log_base",
+           "atomic_write"]
 
 FORMAT = "bondscope-profile"
 VERSION = 1
@@ -373,6 +374,16 @@ def _is_profile_h5(path):
             return H5_GROUP in f and f[H5_GROUP].attrs.get("format") == FORMAT
     except OSError:
         return False
+
+
+def is_saved_profile(path):
+    """True for a saved profile (.json or .csv, or an .h5 results file), False otherwise
+    (a checkpoint)."""
+    path = Path(path)
+    kind = _SUFFIXES.get(path.suffix.lower())
+    if kind in ("json", "csv"):
+        return True
+    return kind == "h5" and path.is_file() and _is_profile_h5(path)
 
 
 def load_profile(path):

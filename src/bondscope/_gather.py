@@ -217,7 +217,7 @@ def collect(sources, *, spectrum=False, **options):
     OSError
         A path that does not exist.
     """
-    from ._document import Profile, load_profile
+    from ._document import Profile, is_saved_profile, load_profile
 
     if isinstance(sources, (str, Path, Profile, Entry)):
         sources = [sources]
@@ -241,20 +241,13 @@ def collect(sources, *, spectrum=False, **options):
             entries += _from_results(path, spectrum)
         elif not path.exists():
             raise OSError(f"{path}: no such checkpoint, profile or results directory")
-        elif _is_saved_profile(path):
+        elif is_saved_profile(path):
             prof = load_profile(path)
             entries.append(_needs_spectra(Entry(path.stem, prof, str(path), _profile_meta(prof)),
                                           spectrum))
         else:
             entries.append(_profile_checkpoint(path, spectrum, options))
     return entries
-
-
-def _is_saved_profile(path):
-    from ._document import _is_profile_h5
-
-    suffix = path.suffix.lower()
-    return suffix in (".json", ".csv") or (suffix in (".h5", ".hdf5") and _is_profile_h5(path))
 
 
 def _profile_checkpoint(path, spectrum, options):

@@ -5,9 +5,8 @@ import re
 import sys
 
 __all__ = ["UsageError", "add_layout_arguments", "add_measure_arguments", "layout_options",
-           "measure_options", "parse_size", "read_input", "print_json", "is_profile_path"]
+           "measure_options", "parse_size", "read_input", "print_json"]
 
-_PROFILE_SUFFIXES = (".json", ".csv")
 
 
 class UsageError(Exception):
@@ -105,30 +104,12 @@ def measure_options(args):
                 scratch=args.scratch, threads=args.threads, precision=args.precision)
 
 
-def is_profile_path(path):
-    """True for a saved profile (.json/.csv, or an .h5 results file), False for a checkpoint."""
-    from pathlib import Path
-
-    path = Path(path)
-    if path.suffix.lower() in _PROFILE_SUFFIXES:
-        return True
-    if path.suffix.lower() in (".h5", ".hdf5") and path.is_file():
-        import h5py
-
-        try:
-            with h5py.File(path, "r") as f:
-                return "bondscope_profile" in f
-        except OSError:
-            return False
-    return False
-
-
 def read_input(path, args, **overrides):
     """A Profile from a saved profile, or by profiling a checkpoint with the args' options."""
-    from .._document import load_profile
+    from .._document import is_saved_profile, load_profile
     from .._pipeline import profile
 
-    if is_profile_path(path):
+    if is_saved_profile(path):
         return load_profile(path)
     opts = layout_options(args) if hasattr(args, "axes") else {}
     if hasattr(args, "renyi"):
