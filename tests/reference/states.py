@@ -74,13 +74,18 @@ def from_vector(psi, dims):
     Returns
     -------
     list of ndarray
-        Tensors (left, phys, right); no Schmidt value is dropped.
+        Tensors (left, phys, right); no Schmidt value is dropped.  Each left
+        singular vector's phase is fixed (largest-magnitude entry real positive),
+        so the tensors do not depend on the LAPACK build's sign choices.
     """
     tensors = []
     rest = np.asarray(psi).reshape(1, -1)
     for d in dims[:-1]:
         a = rest.shape[0]
         U, S, Vh = np.linalg.svd(rest.reshape(a * d, -1), full_matrices=False)
+        top = U[np.argmax(np.abs(U), axis=0), np.arange(U.shape[1])]
+        phase = np.where(top == 0, 1.0, top / np.abs(top))
+        U, Vh = U / phase, phase.conj()[:, None] * Vh
         tensors.append(U.reshape(a, d, -1))
         rest = S[:, None] * Vh
     tensors.append(rest.reshape(rest.shape[0], dims[-1], 1))
