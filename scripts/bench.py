@@ -47,7 +47,7 @@ HEAVY = ("scipy", "numba", "matplotlib", "dask")
 _PROLOGUE = """
 import json, resource, sys, time
 import numpy as np, scipy.linalg, h5py
-import bondscope, bondscope._pipeline, bondscope._sweep, bondscope._checkpoint
+import bondscope, bondscope._pipeline, bondscope._kernels.chain, bondscope._checkpoint
 def rss():
     # VmHWM: this process image's peak resident set.  (ru_maxrss would also count the
     # parent's resident set inherited through fork, which survives exec on Linux.)

@@ -22,7 +22,7 @@ import h5py
 import numpy as np
 from threadpoolctl import threadpool_limits
 
-from bondscope._batch import run_batch
+from bondscope._batch.run import run_batch
 
 
 def random_mps(rng, sites, chi, d=2):

@@ -61,7 +61,7 @@ def time_checkpoints(dest, times=(0.0, 0.5, 1.0, 1.5)):
 
 def batch_dir(dest):
     """Run the batch over a bond-dimension series plus one broken file, with spectra."""
-    from bondscope._batch import run_batch
+    from bondscope._batch.run import run_batch
 
     dest = Path(dest)
     inputs = series_checkpoints(dest / "in")

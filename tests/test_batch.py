@@ -15,7 +15,8 @@ import pytest
 from scipy.linalg import svdvals
 
 import bondscope
-from bondscope._batch import KILL_ENV, collect_inputs, parse_shard, result_key, run_batch
+from bondscope._batch.inputs import collect_inputs, parse_shard, result_key
+from bondscope._batch.run import run_batch
 from bondscope._cli import main
 from bench_batch import random_mps
 
@@ -50,6 +51,40 @@ def make_scan(root, seed=0):
             paths.append(write_checkpoint(root / run / f"state_t{step}.h5", tensors,
                                           time=0.25 * step, bond_dim=4 + 2 * step, run=run))
     return paths
+
+
+# Installed in every new Python process through PYTHONPATH: worker processes started
+# after `doom(name)` kill themselves with SIGKILL when given the checkpoint `name`.
+_DOOM_HOOK = """
+import os
+if os.environ.get("BONDSCOPE_TEST_DOOMED"):
+    import signal
+    from pathlib import Path
+    from bondscope._batch import worker
+
+    _original = worker.profile_one
+
+    def profile_one(task):
+        if Path(task["path"]).name == os.environ["BONDSCOPE_TEST_DOOMED"]:
+            os.kill(os.getpid(), signal.SIGKILL)
+        return _original(task)
+
+    worker.profile_one = profile_one
+"""
+
+
+@pytest.fixture
+def doom(tmp_path, monkeypatch):
+    """doom(name): new worker processes die (SIGKILL) when given the checkpoint ``name``."""
+    hooks = tmp_path / "hooks"
+    hooks.mkdir()
+    (hooks / "sitecustomize.py").write_text(_DOOM_HOOK)
+
+    def arm(name):
+        paths = [str(hooks), os.environ.get("PYTHONPATH", "")]
+        monkeypatch.setenv("PYTHONPATH", os.pathsep.join(p for p in paths if p))
+        monkeypatch.setenv("BONDSCOPE_TEST_DOOMED", name)
+    return arm
 
 
 def stable(row):
@@ -114,13 +149,13 @@ def test_dask_cluster_matches_pool(pooled, tmp_path):
 
 
 @pytest.mark.slow
-def test_dask_worker_death_fails_only_its_checkpoint(tmp_path, monkeypatch):
+def test_dask_worker_death_fails_only_its_checkpoint(tmp_path, doom):
     dask = pytest.importorskip("dask")
     distributed = pytest.importorskip("dask.distributed")
     rng = np.random.default_rng(13)
     for name in ("a.h5", "doomed.h5", "c.h5"):
         write_checkpoint(tmp_path / "scan" / name, random_mps(rng, 8, 4))
-    monkeypatch.setenv(KILL_ENV, "doomed.h5")
+    doom("doomed.h5")
     # one task per worker thread, and no retry after a worker death: the first death
     # marks its one task failed
     config = {"distributed.scheduler.allowed-failures": 0,
@@ -191,12 +226,12 @@ def test_faults_do_not_stop_the_batch(faulty):
     (2, "c.h5"),  # both tasks in flight are retried alone; only the culprit dies again
     (2, "a.h5"),  # the very first task: a death before any success is not a start-up failure
 ])
-def test_dead_worker_fails_only_its_checkpoint(tmp_path, monkeypatch, workers, doomed):
+def test_dead_worker_fails_only_its_checkpoint(tmp_path, doom, workers, doomed):
     rng = np.random.default_rng(11)
     names = ("a.h5", "b.h5", "c.h5", "d.h5")
     for name in names:
         write_checkpoint(tmp_path / "scan" / name, random_mps(rng, 8, 4))
-    monkeypatch.setenv(KILL_ENV, doomed)
+    doom(doomed)
     summary = run_batch(tmp_path / "scan", tmp_path / "out", workers=workers)
     status = {Path(r["source"]).name: r["status"] for r in summary.rows}
     assert status == {n: "failed" if n == doomed else "done" for n in names}
@@ -208,7 +243,7 @@ def test_dead_worker_fails_only_its_checkpoint(tmp_path, monkeypatch, workers, d
 def test_workers_that_cannot_start_stop_the_batch(tmp_path):
     write_checkpoint(tmp_path / "scan" / "a.h5", random_mps(np.random.default_rng(1), 8, 4))
     # spawned workers cannot re-import a main program read from standard input
-    program = ("from bondscope._batch import run_batch\n"
+    program = ("from bondscope._batch.run import run_batch\n"
                f"run_batch({str(tmp_path / 'scan')!r}, {str(tmp_path / 'out')!r}, workers=1)\n")
     done = subprocess.run([sys.executable, "-"], input=program, capture_output=True, text=True,
                           cwd=tmp_path, timeout=120)

@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 
 import bondscope
-from bondscope._budget import bond_budget
+from bondscope._analyses.budget import bond_budget
 from bondscope._cli import main
 from builders import contract, random_chain, write_chain
 from reference import states

@@ -98,7 +98,7 @@ CLI_ERRORS = [
      "unknown axis word 'up'"),
     (lambda t: ["profile", _bad_bonds(t), "--renyi", "two"], 2, "order 'two'"),
     (lambda t: ["profile", _bad_bonds(t), "--max-memory", "12Q"], 2, "size '12Q'"),
-    (lambda t: ["profile", _bad_bonds(t), "--bond-dim", "0"], 2, "bond dimension must be"),
+    (lambda t: ["profile", _bad_bonds(t), "--bond-dim", "0"], 2, "bond_dim (--bond-dim) must be"),
     (lambda t: ["profile"], 2, "the following arguments are required: FILE"),
     (lambda t: ["frobnicate"], 2, "invalid choice: 'frobnicate'"),
 ]

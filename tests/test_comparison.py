@@ -9,7 +9,7 @@ import pytest
 
 import bondscope
 from bondscope._cli import main
-from bondscope._comparison import checkpoint_meta, compare_profiles, extrapolate
+from bondscope._analyses.comparison import checkpoint_meta, compare_profiles, extrapolate
 from builders import contract, random_chain, write_chain
 
 SITES = 10

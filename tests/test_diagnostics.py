@@ -8,7 +8,7 @@ import pytest
 
 import bondscope
 from bondscope._cli import main
-from bondscope._diagnostics import spectrum_diagnostics
+from bondscope._analyses.diagnostics import spectrum_diagnostics
 from reference import states
 
 

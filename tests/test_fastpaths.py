@@ -19,7 +19,8 @@ from scipy.linalg import svdvals
 from threadpoolctl import threadpool_limits
 
 import bondscope
-from bondscope import _sweep
+from bondscope._kernels import amplitudes, chain, parallel
+from bondscope._kernels import store as bond_store
 from bondscope._errors import CheckpointError
 from bondscope._source import chain_from_arrays
 from builders import contract, direct_spectra, random_chain, scramble_gauge, write_chain
@@ -62,10 +63,10 @@ def test_qr_step_keeps_the_singular_values(rshape, shape, dtype):
     if np.dtype(dtype).kind == "c":
         a = a + 1j * rng.standard_normal(shape).astype(dtype)
     ref = svdvals((r @ a.reshape(shape[0], -1)).reshape(-1, shape[2]).astype(np.complex128))
-    got = svdvals(_sweep._qr_step(r, a).astype(np.complex128))
+    got = svdvals(chain.qr_step(r, a).astype(np.complex128))
     k = min(len(ref), len(got))
     np.testing.assert_allclose(got[:k], ref[:k], rtol=0, atol=50 * _eps(dtype) * ref[0])
-    assert _sweep._qr_step(r, a).dtype == np.dtype(dtype)
+    assert chain.qr_step(r, a).dtype == np.dtype(dtype)
 
 
 @pytest.mark.parametrize("rshape, shape, dtype", STEP_SHAPES)
@@ -75,7 +76,7 @@ def test_lq_step_keeps_the_singular_values(rshape, shape, dtype):
     a = rng.standard_normal(shape).astype(dtype)
     env = np.tril(rng.standard_normal((shape[2], shape[2]))).astype(dtype)
     ref = svdvals((a.reshape(-1, shape[2]) @ env).reshape(shape[0], -1).astype(np.complex128))
-    got = svdvals(_sweep._lq_step(a, env).astype(np.complex128))
+    got = svdvals(chain.lq_step(a, env).astype(np.complex128))
     k = min(len(ref), len(got))
     np.testing.assert_allclose(got[:k], ref[:k], rtol=0, atol=50 * _eps(dtype) * ref[0])
 
@@ -100,10 +101,11 @@ def test_concurrent_sweeps_match_sequential_and_svd(dims, bonds, dtype, scramble
     if scramble:
         tensors = scramble_gauge(rng, tensors)
     src = chain_from_arrays(tensors)
-    with _sweep.BondStore() as store:
-        both = _normalised(_sweep._concurrent_chain(src, store, lambda: None, _sweep._product_values))
-    with _sweep.BondStore() as store:
-        plain = _normalised(_sweep._sequential_chain(src, store, lambda: None, _sweep._product_values)[0])
+    with bond_store.BondStore() as store:
+        both = _normalised(chain._concurrent_chain(src, store, lambda: None, chain._product_values))
+    with bond_store.BondStore() as store:
+        plain = _normalised(chain._sequential_chain(src, store, lambda: None,
+                                                    chain._product_values)[0])
     tol = 200 * _eps(dtype) * max(bonds) * max(dims)
     _close(both, ref, tol)
     _close(both, plain, tol)
@@ -116,7 +118,7 @@ def test_concurrent_sweeps_match_sequential_and_svd(dims, bonds, dtype, scramble
 def test_lanes_follow_the_blas_thread_limit(threads, lanes):
     # threadpoolctl's limit decides the lanes (common practice: honour the BLAS variables)
     with threadpool_limits(limits=threads, user_api="blas"):
-        with _sweep._lanes() as got:
+        with parallel.lanes() as got:
             assert got == lanes
 
 
@@ -135,14 +137,14 @@ def test_profile_threads_give_the_same_spectra(threads):
 
 def test_concurrent_sweeps_spill_and_clean_up(tmp_path, monkeypatch):
     # every waiting bond matrix goes to the scratch directory, which is removed afterwards
-    monkeypatch.setattr(_sweep, "_STORE_BYTES", 0)
+    monkeypatch.setattr(bond_store, "STORE_BYTES", 0)
     rng = np.random.default_rng(23)
     dims, bonds = [2] * 8, [2, 4, 8, 8, 8, 4, 2]
     tensors = random_chain(rng, dims, bonds)
     ref = direct_spectra(contract(tensors), dims)
-    with _sweep.BondStore(str(tmp_path / "scr")) as store:
-        got = _normalised(_sweep._concurrent_chain(chain_from_arrays(tensors), store,
-                                                   lambda: None, _sweep._product_values))
+    with bond_store.BondStore(str(tmp_path / "scr")) as store:
+        got = _normalised(chain._concurrent_chain(chain_from_arrays(tensors), store,
+                                                   lambda: None, chain._product_values))
         assert store.spilled
     _close(got, ref, 1e-13)
     assert list((tmp_path / "scr").iterdir()) == []
@@ -157,10 +159,10 @@ def test_failure_in_either_sweep_stops_both(bad_site):
     rng = np.random.default_rng(24)
     tensors = random_chain(rng, [2] * 8, [2, 4, 8, 8, 8, 4, 2])
     tensors[bad_site][0, 0, 0] = np.nan
-    with _sweep.BondStore() as store:
+    with bond_store.BondStore() as store:
         with pytest.raises(CheckpointError, match="NaN"):
-            _sweep._concurrent_chain(chain_from_arrays(tensors), store, lambda: None,
-                                     _sweep._product_values)
+            chain._concurrent_chain(chain_from_arrays(tensors), store, lambda: None,
+                                     chain._product_values)
 
 
 @pytest.mark.parametrize("processes", [False, True])   # threads of this process, then workers
@@ -174,14 +176,14 @@ def test_bond_values_as_dask_tasks(processes):
     with distributed.LocalCluster(n_workers=1, threads_per_worker=1, processes=processes,
                                   dashboard_address=None) as cluster, \
             distributed.Client(cluster) as client:
-        assert _sweep._dask_client() is client
+        assert parallel.dask_client() is client
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", bondscope.UnnormalisedStateWarning)
             prof = bondscope.profile(tensors, spectrum=True)
         prefixes = client.run_on_scheduler(lambda dask_scheduler: list(dask_scheduler.task_prefixes))
     assert "product_values" in prefixes          # dask keys drop the leading underscore
     _close(prof.spectra, ref, 200 * _eps(np.float64) * 16 * 2)
-    assert _sweep._dask_client() is None
+    assert parallel.dask_client() is None
 
 
 STATES = [
@@ -206,7 +208,7 @@ def test_gram_matches_svd(dims, dtype):
     psi = psi.astype(dtype)
     ref = direct_spectra(psi.astype(np.complex128), dims)
     norm = float(np.linalg.norm(psi.astype(np.complex128)))
-    got, sizes = _sweep._gram_spectra(psi, dims, "<test>", 1.0 / norm**2)
+    got, sizes = amplitudes._gram_spectra(psi, dims, "<test>", 1.0 / norm**2)
     assert all(s.dtype == np.finfo(dtype).dtype for s in got)
     _close(got, ref, 20 * np.sqrt(_eps(dtype) * size))
 

@@ -12,7 +12,8 @@ pytest.importorskip("matplotlib")
 import bondscope  # noqa: E402
 from bondscope import CheckpointError  # noqa: E402
 from bondscope._cli import main  # noqa: E402
-from bondscope._figure import OKABE_ITO, plot, save_figure  # noqa: E402
+from bondscope._figures._kinds import plot  # noqa: E402
+from bondscope._figures._style import OKABE_ITO, save_figure  # noqa: E402
 from bondscope._text import entropy_unit  # noqa: E402
 from plotdata import PNG_MAGIC, ROOT, batch_dir, series_checkpoints, time_checkpoints  # noqa: E402
 from reference import freefermion, states  # noqa: E402
@@ -54,7 +55,8 @@ def _xx_profile(L, base="e", boundary="open"):
 
 
 # analysis module behind each kind that needs one besides the scaling fit
-_ANALYSIS = {"budget": "bondscope._budget", "convergence": "bondscope._comparison"}
+_ANALYSIS = {"budget": "bondscope._analyses.budget",
+             "convergence": "bondscope._analyses.comparison"}
 
 
 def _needs(kind):

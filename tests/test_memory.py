@@ -126,7 +126,7 @@ def test_available_memory_honours_an_address_space_limit():
 _CHILD = """
 import json, resource, sys, warnings
 sys.path.insert(0, {src!r})
-import numpy, scipy.linalg, h5py, bondscope, bondscope._pipeline, bondscope._sweep
+import numpy, scipy.linalg, h5py, bondscope, bondscope._pipeline, bondscope._kernels.chain
 with open("/proc/self/statm") as f:
     base = int(f.read().split()[1]) * resource.getpagesize()
 warnings.simplefilter("ignore")

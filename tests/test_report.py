@@ -9,7 +9,7 @@ from pathlib import Path
 import pytest
 
 pytest.importorskip("matplotlib")
-pytest.importorskip("bondscope._comparison")  # the convergence figure of each series
+pytest.importorskip("bondscope._analyses.comparison")  # the convergence figure of each series
 
 from bondscope._cli import main  # noqa: E402
 from bondscope._report import report_html, write_report  # noqa: E402

@@ -9,7 +9,7 @@ import pytest
 
 import bondscope
 from bondscope._cli import main
-from bondscope._scaling import fit_scaling, page_entropy, parse_window
+from bondscope._analyses.scaling import fit_scaling, page_entropy, parse_window
 from reference import freefermion, states
 
 
@@ -242,7 +242,7 @@ CLI = [
     (["--window", "1:x"], 2, "--window"),                  # non-integer window
     (["--corrections", "wiggle"], 2, "--corrections"),     # unknown correction
     (["--spectrum-report"], 2, "--spectrum"),              # no spectra in the profile
-    (["--boundary", "moebius"], 2, "invalid choice"),      # argparse choices
+    (["--boundary", "moebius"], 2, "boundary (--boundary)"),  # unknown boundary
 ]
 
 

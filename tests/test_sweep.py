@@ -217,9 +217,9 @@ def test_spectrum_count_keeps_largest():
 
 def test_spilled_bond_store_gives_same_spectra(tmp_path, monkeypatch):
     # force every bond matrix to the scratch directory; it is removed afterwards
-    from bondscope import _sweep
+    from bondscope._kernels import store
 
-    monkeypatch.setattr(_sweep, "_STORE_BYTES", 0)
+    monkeypatch.setattr(store, "STORE_BYTES", 0)
     rng = np.random.default_rng(6)
     tensors = random_chain(rng, [2] * 8, [2, 4, 8, 8, 8, 4, 2])
     ref = direct_spectra(contract(tensors), [2] * 8)

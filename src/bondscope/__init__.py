@@ -2,12 +2,13 @@
 
 The stages, in the order data flows through them::
 
-    checkpoint (HDF5, read-only) -> source -> sweep -> Profile document
+    checkpoint (HDF5, read-only) -> source -> kernels -> Profile document
         -> analyses (scaling fit, bond budget, comparison) -> outputs
 
 Profiling
 ---------
 profile          -- Profile of a checkpoint path, a state vector or a list of site tensors
+ProfileOptions   -- every profiling option (layout, measures, resources), validated once
 inspect          -- what a checkpoint holds and what profiling it will cost, without spectra
 open_source      -- the validated source (chain of site tensors, or amplitudes) of a checkpoint
 Profile          -- the Profile document (entropies, spectra, to_json, save)
@@ -53,24 +54,25 @@ __version__ = "0.1.0"
 
 _LAZY = {
     "profile": "bondscope._pipeline",
+    "ProfileOptions": "bondscope._options",
     "inspect": "bondscope._pipeline",
     "open_source": "bondscope._checkpoint",
     "Profile": "bondscope._document",
     "load_profile": "bondscope._document",
     "entropy_measures": "bondscope._measure",
     "UnnormalisedStateWarning": "bondscope._pipeline",
-    "run_batch": "bondscope._batch",
-    "plot": "bondscope._figure",
-    "entropy_figure": "bondscope._figure",
-    "spectrum_figure": "bondscope._figure",
-    "budget_figure": "bondscope._figure",
-    "heatmap_figure": "bondscope._figure",
-    "convergence_figure": "bondscope._figure",
+    "run_batch": "bondscope._batch.run",
+    "plot": "bondscope._figures._kinds",
+    "entropy_figure": "bondscope._figures.entropy",
+    "spectrum_figure": "bondscope._figures.spectrum",
+    "budget_figure": "bondscope._figures.budget",
+    "heatmap_figure": "bondscope._figures.heatmap",
+    "convergence_figure": "bondscope._figures.convergence",
     "write_report": "bondscope._report",
-    "fit_scaling": "bondscope._scaling",
-    "bond_budget": "bondscope._budget",
-    "compare_profiles": "bondscope._comparison",
-    "spectrum_diagnostics": "bondscope._diagnostics",
+    "fit_scaling": "bondscope._analyses.scaling",
+    "bond_budget": "bondscope._analyses.budget",
+    "compare_profiles": "bondscope._analyses.comparison",
+    "spectrum_diagnostics": "bondscope._analyses.diagnostics",
 }
 
 __all__ = ["CheckpointError", "MemoryLimitError", "__version__", *_LAZY]

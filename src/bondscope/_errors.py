@@ -1,7 +1,7 @@
 """Error types raised at bondscope's public boundary."""
 
 __all__ = ["CheckpointError", "MemoryLimitError", "EXIT_USAGE", "EXIT_CHECKPOINT", "EXIT_MEMORY",
-           "EXIT_FAILED"]
+           "EXIT_FAILED", "one_line"]
 
 EXIT_USAGE = 2
 EXIT_CHECKPOINT = 3
@@ -19,3 +19,17 @@ class CheckpointError(ValueError):
 
 class MemoryLimitError(MemoryError):
     """Work refused before it starts because its memory estimate exceeds the limit."""
+
+
+def one_line(message):
+    """An error (or any text) as one line: whitespace runs folded to single spaces.
+
+    Examples
+    --------
+    >>> one_line(ValueError("bad   bond"))
+    'bad bond'
+    >>> one_line(KeyError())
+    'KeyError'
+    """
+    text = " ".join(str(message).split())
+    return text or (type(message).__name__ if isinstance(message, BaseException) else "")

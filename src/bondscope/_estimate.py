@@ -115,17 +115,6 @@ def _flop_rate():
     return _RATE[0]
 
 
-def _rho_sizes(dims):
-    """Entries of the reduced density matrices the gram route forms, in the order formed:
-    the left middle one and its partial traces, then the right ones."""
-    from ._sweep import _middle
-
-    n, m = len(dims), _middle(dims)
-    left = [prod(dims[:pos]) ** 2 for pos in range(m, 0, -1)]
-    right = [prod(dims[pos:]) ** 2 for pos in range(m + 1, n)]
-    return left, right
-
-
 def estimate(src, route=None, truncating=False):
     """Memory and work of profiling ``src`` (a ChainSource or AmplitudeSource).
 
@@ -134,7 +123,7 @@ def estimate(src, route=None, truncating=False):
     MPS: two sweeps may run at once, each holding a site tensor as read (plus
     the stored copy when it is converted or transposed), its product with a
     bond matrix, and a few bond matrices; plus the in-memory part of the bond
-    store (at most 32 MiB); truncation tracking adds two tensor-sized blocks.
+    store (at most its budget, ``_kernels.store.STORE_BYTES``); truncation tracking adds two tensor-sized blocks.
     Work sums d chi_l chi_r (chi_l + chi_r) per site and chi^3 per bond SVD.
     State vectors: the larger of the read (the amplitudes, plus the stored
     array while it is converted) and the computation.  gram holds the state,
@@ -144,7 +133,8 @@ def estimate(src, route=None, truncating=False):
     block being decomposed and its right singular vectors).  Checked against
     measured peaks by ``scripts/bench.py``.
     """
-    from . import _sweep
+    from ._kernels.amplitudes import gram_matrix_sizes
+    from ._kernels.store import resident_bytes
 
     item = np.dtype(src.compute_dtype).itemsize
     stored = np.dtype(src.dtype).itemsize
@@ -154,7 +144,7 @@ def estimate(src, route=None, truncating=False):
         tensor = max(prod(s) for s in shapes) * item
         raw = max(prod(s) for s in shapes) * stored
         bond = max(max(s[0], s[2]) for s in shapes) ** 2 * item
-        store = min(sum(s[0] ** 2 for s in shapes) * item, _sweep._STORE_BYTES)
+        store = resident_bytes(s[0] ** 2 * item for s in shapes)
         memory = 2 * (2 * tensor + raw + 3 * bond) + store + (2 * tensor if truncating else 0)
         flops = sum(2 * 2 * s[0] * s[1] * s[2] * (s[0] + s[2]) for s in shapes)
         flops += sum(10 * s[2] ** 3 for s in shapes[:-1])
@@ -174,7 +164,7 @@ def estimate(src, route=None, truncating=False):
         read = state + (total * stored if stored != item else 0) + total
         work = 128 * best * item        # LAPACK workspace and the values, O(n)
         if route == "gram":
-            lefts, rights = _rho_sizes(dims)
+            lefts, rights = gram_matrix_sizes(dims)
             rest = sorted(lefts[1:2] + rights[:1], reverse=True)
             second = rest[0] if rest else 0
             memory = max(read, state + (lefts[0] + second + second // 4) * item + work)

@@ -4,7 +4,11 @@ import math
 
 import numpy as np
 
-__all__ = ["entropy_measures", "resolution_floor", "kept_rank", "discarded_weight"]
+__all__ = ["entropy_measures", "spectrum_measures", "renyi_orders", "resolution_floor",
+           "kept_rank", "discarded_weight"]
+
+# sum of lambda^2 off 1 by more than this (relative) is not a normalised spectrum
+_NORM_SLACK = 1e-6
 
 
 def resolution_floor(values, route, size):
@@ -65,39 +69,108 @@ def discarded_weight(values, keep):
     return float(p[keep:].sum() / p.sum())
 
 
+def renyi_orders(renyi):
+    """Rényi orders as the keys they are written under ("2", "0.5", "inf"), validated.
+
+    Parameters
+    ----------
+    renyi : str, float or sequence of them
+        Orders alpha >= 0, or "inf".
+
+    Returns
+    -------
+    list of str
+
+    Raises
+    ------
+    ValueError
+        An order that is not a number >= 0 or "inf".
+
+    Examples
+    --------
+    >>> renyi_orders([2, 0.5, "inf"])
+    ['2', '0.5', 'inf']
+    """
+    if isinstance(renyi, (str, int, float)):
+        renyi = [renyi]
+    out = []
+    for a in renyi:
+        key = a.strip() if isinstance(a, str) else (str(int(a)) if float(a).is_integer()
+                                                     else repr(float(a)))
+        try:
+            ok = float(key) >= 0
+        except ValueError:
+            ok = False
+        if not ok:
+            raise ValueError(f"Renyi order {a!r} (renyi=, --renyi) is not a number >= 0 "
+                             "or 'inf'")
+        out.append(key)
+    return out
+
+
 def entropy_measures(values, *, renyi=(), base=math.e, floor=0.0):
     """von Neumann and Rényi entropies, rank and levels of one Schmidt spectrum.
 
     Parameters
     ----------
     values : array_like, shape (k,)
-        Schmidt values lambda_i >= 0 (normalised so sum lambda^2 = 1), descending.
-    renyi : sequence of str
-        Rényi orders as written ("0.5", "2", "inf"); "1" is the von Neumann entropy,
+        Schmidt values lambda_i >= 0, normalised so that sum lambda^2 = 1.
+    renyi : sequence of str or float
+        Rényi orders ("0.5", 2, "inf"); "1" is the von Neumann entropy,
         "0" is ln(rank) with the rank counted above ``floor``, "inf" is -ln lambda_max^2.
     base : float
-        Logarithm base of the results.
+        Logarithm base of the results (> 1).
     floor : float
         Resolution floor; values at or below it are not counted in the rank or levels.
 
     Returns
     -------
     dict
-        ``entropy``, ``renyi`` (dict keyed as given), ``schmidt_rank``, ``levels``
-        (ndarray of -ln lambda^2 above the floor).
+        ``entropy``, ``renyi`` (dict keyed by the orders as written), ``schmidt_rank``,
+        ``levels`` (ndarray of -ln lambda^2 above the floor).
+
+    Raises
+    ------
+    ValueError
+        Negative, non-finite or unnormalised values, a bad order, base or floor.
 
     Notes
     -----
     S = -sum p ln p with p = lambda^2; S_alpha = ln(sum p^alpha) / (1 - alpha)
     (Rényi, Proc. 4th Berkeley Symp. 1, 547 (1961)).  Cost O(k).
+
+    Examples
+    --------
+    >>> m = entropy_measures([2 ** -0.5, 2 ** -0.5], renyi=[2], base=2)
+    >>> round(m["entropy"], 12), round(m["renyi"]["2"], 12), m["schmidt_rank"]
+    (1.0, 1.0, 2)
     """
+    v = np.asarray(values, dtype=np.float64)
+    if v.ndim != 1 or not v.size:
+        raise ValueError(f"values must be a non-empty 1-D spectrum, found shape {v.shape}")
+    if not np.isfinite(v).all() or (v < 0).any():
+        raise ValueError("values must be finite Schmidt values >= 0")
+    total = float(np.sum(v * v))
+    if abs(total - 1.0) > _NORM_SLACK:
+        raise ValueError(f"values are not normalised: sum of squares is {total:.12g}, expected 1 "
+                         "(divide by the norm first)")
+    if not (math.isfinite(base) and base > 1):
+        raise ValueError(f"base must be a finite number > 1, found {base!r}")
+    if not (math.isfinite(floor) and floor >= 0):
+        raise ValueError(f"floor must be a finite number >= 0, found {floor!r}")
+    return spectrum_measures(np.sort(v)[::-1], renyi_orders(renyi), base, floor)
+
+
+def spectrum_measures(values, orders, base, floor):
+    """:func:`entropy_measures` for trusted input: a normalised descending spectrum and
+    validated order keys (the kernels' path)."""
     p = _weights(values)
     scale = 1.0 / math.log(base)
     nz = p[p > 0]
     entropy = float(-(nz * np.log(nz)).sum()) * scale
     rank = int(np.count_nonzero(np.asarray(values) > floor)) or 1
     out = {}
-    for key in renyi:
+    for key in orders:
         alpha = float(key)
         if alpha == 0:
             val = math.log(rank)

@@ -14,8 +14,8 @@ import math
 from datetime import datetime, timezone
 from pathlib import Path
 
-from ._errors import CheckpointError
-from ._gather import entries_of_rows, read_results
+from ._errors import CheckpointError, one_line
+from ._figures._gather import entries_of_rows, read_results
 
 __all__ = ["write_report", "report_html"]
 
@@ -147,7 +147,7 @@ def _failures(rows):
 
 
 def _png(fig):
-    from ._figure import figure_bytes
+    from ._figures._style import figure_bytes
 
     return base64.b64encode(figure_bytes(fig, "png", dpi=110)).decode("ascii")
 
@@ -157,7 +157,7 @@ def _figure_html(draw, entries, caption, alt, **options):
     try:
         fig = draw(entries, **options)
     except (CheckpointError, ValueError, KeyError) as exc:
-        reason = " ".join(str(exc).split())
+        reason = one_line(exc)
         return f'<p class="note">{_esc(caption)}: not drawn ({_esc(reason)}).</p>'
     return (f'<figure><img alt="{_esc(alt)}" src="data:image/png;base64,{_png(fig)}">'
             f"<figcaption>{_esc(caption)}</figcaption></figure>")
@@ -167,8 +167,8 @@ def _anchor(name):
     return "series-" + "".join(c if c.isalnum() else "-" for c in str(name))
 
 
-def _series_html(name, members, boundary):
-    from . import _figure
+def _series_html(name, members, boundary, fit):
+    from ._figures._kinds import figure_function as drawing
 
     times = [m.meta.get("time") for m in members]
     timed = len(members) > 1 and all(isinstance(t, (int, float)) for t in times) \
@@ -178,25 +178,25 @@ def _series_html(name, members, boundary):
     parts = [f'<h2 id="{_anchor(name)}">Series {_esc(name)}</h2>',
              f'<p class="lede">{len(members)} checkpoint(s): '
              f'{_esc(", ".join(m.label for m in members))}</p>',
-             _figure_html(_figure.entropy_figure, members,
+             _figure_html(drawing("entropy"), members,
                           "Entropy S(l) of each checkpoint with its central-charge fit "
                           "(dashed) and the residuals",
-                          f"entropy of series {name}", boundary=boundary, title=""),
-             _figure_html(_figure.spectrum_figure, [last],
+                          f"entropy of series {name}", boundary=boundary, fit=fit, title=""),
+             _figure_html(drawing("spectrum"), [last],
                           f"Entanglement spectrum of {last.label}{chi}",
                           f"entanglement spectrum of {last.label}", title="")
              if last.profile.has_spectra else
              f'<p class="note">Entanglement spectrum of {_esc(last.label)}: not drawn (the '
              "batch stored no Schmidt values; rerun it with --spectrum).</p>"]
     if timed:
-        parts.append(_figure_html(_figure.heatmap_figure, members,
+        parts.append(_figure_html(drawing("heatmap"), members,
                                   "Entropy S(l, t) through the series",
                                   f"entropy heatmap of series {name}", title=""))
     elif len(members) > 1:
         weighed = all(isinstance(m.meta.get("max_discarded_weight",
                                             m.profile.get("discarded_weight")), (int, float))
                       for m in members)
-        parts.append(_figure_html(_figure.convergence_figure, members,
+        parts.append(_figure_html(drawing("convergence"), members,
                                   "Middle-cut entropy against the "
                                   f"{'discarded weight' if weighed else 'inverse bond dimension'}"
                                   ", extrapolated to zero", f"convergence of series {name}",
@@ -212,7 +212,7 @@ def _counts(total, counts):
             f'<span class="{failed}">{counts["failed"]} failed</span>')
 
 
-def report_html(results_dir, *, boundary=None, title=None):
+def report_html(results_dir, *, boundary=None, title=None, fit=True):
     """The report page of a batch results directory, as a string.
 
     Parameters
@@ -224,6 +224,9 @@ def report_html(results_dir, *, boundary=None, title=None):
         checkpoint's ``boundary`` attribute, else open).
     title : str, optional
         Page heading (default: "bondscope report: <directory name>").
+    fit : bool or dict
+        The central-charge fit of the entropy figures: True (default
+        settings), False (none) or :func:`bondscope.fit_scaling` keywords.
 
     Returns
     -------
@@ -243,7 +246,7 @@ def report_html(results_dir, *, boundary=None, title=None):
         series = {"all checkpoints": [r for r in rows if r["ok"]]}
     counts = {s: sum(r.get("status") == s for r in rows) for s in ("done", "skipped", "failed")}
     heading = title or f"bondscope report: {results_dir.resolve().name}"
-    sections = [_series_html(name, entries_of_rows(members), boundary)
+    sections = [_series_html(name, entries_of_rows(members), boundary, fit)
                 for name, members in series.items()]
     links = "".join(f'<a href="#{_anchor(n)}">{_esc(n)}</a>' for n in series)
     stamp = datetime.now(timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
@@ -278,7 +281,7 @@ meaning. Entropies are in the profiles' own units.</p>
 """
 
 
-def write_report(results_dir, output, *, boundary=None, title=None):
+def write_report(results_dir, output, *, boundary=None, title=None, fit=True):
     """Write the report page of a batch results directory to one HTML file.
 
     Parameters
@@ -286,7 +289,7 @@ def write_report(results_dir, output, *, boundary=None, title=None):
     results_dir : str or Path
     output : str or Path
         The HTML file (written whole or not at all).
-    boundary, title
+    boundary, title, fit
         See :func:`report_html`.
 
     Returns
@@ -301,10 +304,10 @@ def write_report(results_dir, output, *, boundary=None, title=None):
     OSError, CheckpointError
         Not a readable results directory.
     """
-    from ._document import atomic_write
+    from ._files import atomic_write
 
     output = Path(output)
     if output.suffix.lower() not in (".html", ".htm"):
         raise ValueError(f"{output}: the report is an HTML page; give it an .html name")
-    page = report_html(results_dir, boundary=boundary, title=title)
+    page = report_html(results_dir, boundary=boundary, title=title, fit=fit)
     return atomic_write(output, lambda tmp: Path(tmp).write_text(page, encoding="utf-8"))

@@ -1,10 +1,22 @@
 """Plain-text output: the per-cut table and the inspect summary."""
 
 import math
+import re
 
 from ._estimate import format_bytes
 
-__all__ = ["profile_table", "inspect_text", "entropy_unit"]
+__all__ = ["profile_table", "inspect_text", "entropy_unit", "natural_key"]
+
+
+def natural_key(text):
+    """Sort key putting 'run2' before 'run10' (numbers in names compared as numbers).
+
+    Examples
+    --------
+    >>> sorted(["chi16", "chi4", "chi8"], key=natural_key)
+    ['chi4', 'chi8', 'chi16']
+    """
+    return [int(t) if t.isdigit() else t for t in re.split(r"(\d+)", str(text))]
 
 
 def entropy_unit(log_base):

@@ -11,7 +11,7 @@ import sys
 from importlib import import_module
 
 from .._errors import (EXIT_CHECKPOINT, EXIT_FAILED, EXIT_MEMORY, EXIT_USAGE, CheckpointError,
-                       MemoryLimitError)
+                       MemoryLimitError, one_line)
 from ._common import UsageError
 
 __all__ = ["main", "build_parser"]
@@ -75,7 +75,7 @@ def main(argv=None):
 
 
 def _classify(exc):
-    message = " ".join(str(exc).split()) or type(exc).__name__
+    message = one_line(exc)
     if isinstance(exc, UsageError):
         return EXIT_USAGE, message
     if isinstance(exc, MemoryLimitError):

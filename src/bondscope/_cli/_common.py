@@ -1,12 +1,18 @@
-"""Options and helpers shared by the verbs (argparse-level, no heavy imports)."""
+"""Flags and helpers shared by the verbs (argparse-level, no heavy imports).
+
+Every flag that more than one verb takes is defined once, in :data:`FLAGS`,
+named after the library parameter it sets; a verb registers the ones it uses
+with :func:`add_flags`.  Flags convert text to Python values; the library
+checks the values (its messages name the parameter and the flag).
+"""
 
 import json
 import re
 import sys
 
-__all__ = ["UsageError", "add_layout_arguments", "add_measure_arguments", "layout_options",
-           "measure_options", "parse_size", "read_input", "print_json"]
-
+__all__ = ["UsageError", "FLAGS", "add_flags", "add_layout_flags", "profile_options",
+           "fit_options", "parse_size", "read_input", "print_json", "LAYOUT_FLAGS",
+           "RESOURCE_FLAGS", "MEASURE_FLAGS", "FIT_FLAGS"]
 
 
 class UsageError(Exception):
@@ -22,86 +28,141 @@ def parse_size(text):
     return int(float(m.group(1)) * scale)
 
 
-def _local_dim(text):
-    try:
-        dims = [int(t) for t in text.split(",")]
-    except ValueError:
-        raise UsageError(f"--local-dim {text!r}: expected an integer or a comma list") from None
-    return dims[0] if len(dims) == 1 else dims
+def _integers(flag):
+    def parse(text):
+        try:
+            values = [int(t) for t in text.split(",")]
+        except ValueError:
+            raise UsageError(f"{flag} {text!r}: expected an integer or a comma list") from None
+        return values[0] if len(values) == 1 else values
+    return parse
 
 
-def _renyi(text):
-    from .._pipeline import renyi_orders
-
-    try:
-        return renyi_orders([t for t in text.split(",") if t.strip()])
-    except ValueError as exc:
-        raise UsageError(f"--renyi: {exc}") from None
+def _words(text):
+    return [t.strip() for t in text.split(",") if t.strip()]
 
 
 def _spectrum(text):
-    if text is None or text == "all":
+    if text == "all":
         return True
     try:
-        k = int(text)
+        return int(text)
     except ValueError:
         raise UsageError(f"--spectrum {text!r}: expected a count K or 'all'") from None
-    if k < 1:
-        raise UsageError(f"--spectrum {k}: K must be >= 1")
-    return k
 
 
-def add_layout_arguments(p):
-    g = p.add_argument_group("checkpoint layout (auto-detected when omitted)")
-    g.add_argument("--state", metavar="DATASET", help="dataset holding a state vector")
-    g.add_argument("--tensors", metavar="PATTERN",
-                   help="site tensor datasets, with a {site} placeholder, e.g. /run/psi/T{site}")
-    g.add_argument("--local-dim", metavar="D", type=_local_dim,
-                   help="local dimension for a 1-D state vector: one integer or a comma list "
-                        "per site (default 2)")
-    g.add_argument("--axes", metavar="ORDER",
-                   help="axis order of the site tensors, a permutation of left,phys,right")
+def _corrections(text):
+    names = _words(text)
+    return () if names == ["none"] else tuple(names)
 
 
-def add_measure_arguments(p):
-    g = p.add_argument_group("measures")
-    g.add_argument("--renyi", metavar="ALPHAS", type=_renyi, default=[],
-                   help="Renyi orders, e.g. 0.5,2,inf")
-    g.add_argument("--base", metavar="B", default="e",
-                   help="logarithm base: e (nats, default) or 2 (bits)")
-    g.add_argument("--spectrum", metavar="K", nargs="?", const="all", default=False,
-                   help="store Schmidt values: all, or the K largest")
-    g.add_argument("--bond-dim", metavar="CHI", type=int,
-                   help="report the discarded weight and infidelity of truncating to CHI")
-    g.add_argument("--weight-tol", metavar="EPS", type=float,
-                   help="truncate each cut to the smallest rank dropping weight <= EPS")
-    g.add_argument("--route", choices=("auto", "gram", "svd"), default="auto",
-                   help="state vectors: gram (reduced density matrices, fast), svd "
-                        "(resolves the small Schmidt values), or auto (default)")
-    g.add_argument("--accurate", action="store_const", dest="route", const="svd",
-                   help="same as --route svd")
-    g.add_argument("--precision", choices=("promote", "stored"), default="promote",
-                   help="single-precision checkpoints: compute in double (promote, default) "
-                        "or as stored (half the memory, floors at float32 eps)")
-    g = p.add_argument_group("resources")
-    g.add_argument("--max-memory", metavar="SIZE", type=parse_size,
-                   help="refuse work whose estimate exceeds SIZE (default: available memory)")
-    g.add_argument("--scratch", metavar="DIR",
-                   help="directory for spilled bond matrices (default a temporary directory)")
-    g.add_argument("--threads", metavar="N", type=int,
-                   help="threads for linear algebra (default: BLAS environment or core count)")
-    g.add_argument("--quiet", action="store_true", help="no progress bar or warnings")
+# dest -> (group, flags, argparse keywords); the dest is the library's parameter name
+FLAGS = {
+    # checkpoint layout
+    "state": ("layout", ("--state",), dict(metavar="DATASET",
+                                           help="dataset holding a state vector")),
+    "tensors": ("layout", ("--tensors",), dict(
+        metavar="PATTERN",
+        help="site tensor datasets, with a {site} placeholder, e.g. /run/psi/T{site}")),
+    "local_dim": ("layout", ("--local-dim",), dict(
+        metavar="D", type=_integers("--local-dim"),
+        help="local dimension for a 1-D state vector: one integer or a comma list per site "
+             "(default 2)")),
+    "axes": ("layout", ("--axes",), dict(
+        metavar="ORDER", help="axis order of the site tensors, a permutation of left,phys,right")),
+    # measures
+    "renyi": ("measures", ("--renyi",), dict(metavar="ALPHAS", type=_words, default=[],
+                                             help="Renyi orders, e.g. 0.5,2,inf")),
+    "base": ("measures", ("--base",), dict(
+        metavar="B", default="e", help="logarithm base: e (nats, default) or 2 (bits)")),
+    "spectrum": ("measures", ("--spectrum",), dict(
+        metavar="K", nargs="?", const=True, default=False, type=_spectrum,
+        help="store Schmidt values: all, or the K largest")),
+    "bond_dim": ("measures", ("--bond-dim",), dict(
+        metavar="CHI", type=int,
+        help="report the discarded weight and infidelity of truncating to CHI")),
+    "weight_tol": ("measures", ("--weight-tol",), dict(
+        metavar="EPS", type=float,
+        help="truncate each cut to the smallest rank dropping weight <= EPS")),
+    "route": ("measures", ("--route",), dict(
+        default="auto", help="state vectors: gram (reduced density matrices, fast), svd "
+                             "(resolves the small Schmidt values), or auto (default)")),
+    "precision": ("measures", ("--precision",), dict(
+        default="promote", help="single-precision checkpoints: compute in double (promote, "
+                                "default) or as stored (half the memory, floors at float32 eps)")),
+    # resources
+    "max_memory": ("resources", ("--max-memory",), dict(
+        metavar="SIZE", type=parse_size,
+        help="refuse work whose estimate exceeds SIZE (default: available memory)")),
+    "scratch": ("resources", ("--scratch",), dict(
+        metavar="DIR", help="directory for spilled bond matrices (default a temporary directory)")),
+    "threads": ("resources", ("--threads",), dict(
+        metavar="N", type=int,
+        help="threads for linear algebra (default: BLAS environment or core count)")),
+    "quiet": ("resources", ("--quiet",), dict(action="store_true",
+                                              help="no progress bar or warnings")),
+    # scaling fit
+    "boundary": ("fit", ("--boundary",), dict(
+        help="open (chain with two ends) or periodic (ring); default: the checkpoint's "
+             "'boundary' attribute or profile field, else open")),
+    "window": ("fit", ("--window",), dict(
+        metavar="A:B", help="cut positions to fit, inclusive (default: drop L//8 cuts at each "
+                            "end)")),
+    "corrections": ("fit", ("--corrections",), dict(
+        metavar="LIST", type=_corrections,
+        help="extra terms: parity, smooth, both (parity,smooth) or none (default: both for open "
+             "chains, none for rings)")),
+    "parity_exponent": ("fit", ("--parity-exponent",), dict(
+        metavar="K", type=float,
+        help="decay exponent of the alternating term (default 1, free fermions)")),
+}
+
+LAYOUT_FLAGS = ("state", "tensors", "local_dim", "axes")
+MEASURE_FLAGS = ("renyi", "base", "spectrum", "bond_dim", "weight_tol", "route", "precision")
+RESOURCE_FLAGS = ("max_memory", "scratch", "threads", "quiet")
+FIT_FLAGS = ("boundary", "window", "corrections", "parity_exponent")
+_TITLES = {"layout": "checkpoint layout (auto-detected when omitted)", "measures": "measures",
+           "resources": "resources", "fit": "scaling fit"}
 
 
-def layout_options(args):
-    return dict(state=args.state, tensors=args.tensors, local_dim=args.local_dim, axes=args.axes)
+def add_flags(p, *names):
+    """Register the shared flags ``names`` on parser ``p``, grouped as in :data:`FLAGS`."""
+    groups = {}
+    registered = getattr(p, "_bondscope_flags", set())
+    for name in names:
+        group, flags, kw = FLAGS[name]
+        if group not in groups:
+            groups[group] = p.add_argument_group(_TITLES[group])
+        groups[group].add_argument(*flags, dest=name, **kw)
+        if name == "route":
+            groups[group].add_argument("--accurate", action="store_const", dest="route",
+                                       const="svd", help="same as --route svd")
+        registered.add(name)
+    p._bondscope_flags = registered
+    p.set_defaults(_flags=frozenset(registered))
 
 
-def measure_options(args):
-    spectrum = False if args.spectrum is False else _spectrum(args.spectrum)
-    return dict(renyi=args.renyi, base=args.base, spectrum=spectrum, bond_dim=args.bond_dim,
-                weight_tol=args.weight_tol, route=args.route, max_memory=args.max_memory,
-                scratch=args.scratch, threads=args.threads, precision=args.precision)
+def add_layout_flags(p):
+    add_flags(p, *LAYOUT_FLAGS)
+
+
+def _registered(args, names):
+    flags = getattr(args, "_flags", frozenset())
+    return {n: getattr(args, n) for n in names if n in flags}
+
+
+def profile_options(args, **overrides):
+    """The :class:`~bondscope.ProfileOptions` that the verb's registered flags set."""
+    from .._options import LAYOUT, MEASURES, RESOURCES, ProfileOptions
+
+    kwargs = _registered(args, (*LAYOUT, *MEASURES, *RESOURCES))
+    kwargs.update(overrides)
+    return ProfileOptions.from_kwargs(**kwargs)
+
+
+def fit_options(args):
+    """The scaling-fit keywords that the verb's registered flags set (None left out)."""
+    return {k: v for k, v in _registered(args, FIT_FLAGS).items() if v is not None}
 
 
 def read_input(path, args, **overrides):
@@ -111,12 +172,11 @@ def read_input(path, args, **overrides):
 
     if is_saved_profile(path):
         return load_profile(path)
-    opts = layout_options(args) if hasattr(args, "axes") else {}
-    if hasattr(args, "renyi"):
-        opts.update(measure_options(args))
-    opts.update(overrides)
-    return profile(path, progress=not getattr(args, "quiet", False), **opts)
+    return profile(path, profile_options(args, **overrides),
+                   progress=not getattr(args, "quiet", False))
 
 
 def print_json(obj):
+    if hasattr(obj, "to_dict"):
+        obj = obj.to_dict()
     sys.stdout.write(json.dumps(obj, indent=1, allow_nan=False) + "\n")

@@ -4,13 +4,15 @@ import sys
 import warnings
 from contextlib import contextmanager
 
+from .._errors import one_line
+
 __all__ = ["quiet_warnings"]
 
 
 @contextmanager
 def quiet_warnings(quiet=False):
     def show(message, category, filename, lineno, file=None, line=None):
-        print(f"warning: {' '.join(str(message).split())}", file=sys.stderr)
+        print(f"warning: {one_line(message)}", file=sys.stderr)
 
     with warnings.catch_warnings():
         if quiet:

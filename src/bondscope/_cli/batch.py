@@ -2,30 +2,11 @@
 
 import sys
 
-from ._common import (UsageError, add_layout_arguments, add_measure_arguments, layout_options,
-                      measure_options)
+from ._common import (LAYOUT_FLAGS, MEASURE_FLAGS, RESOURCE_FLAGS, add_flags,
+                      profile_options)
 
 HELP = "profile many checkpoints into a results directory (resumable, local pool or Dask)"
 ORDER = 30
-
-
-def _shard(text):
-    from .._batch import parse_shard
-
-    try:
-        return parse_shard(text)
-    except ValueError as exc:
-        raise UsageError(f"--shard: {exc}") from None
-
-
-def _workers(text):
-    try:
-        n = int(text)
-    except ValueError:
-        n = 0
-    if n < 1:
-        raise UsageError(f"--workers {text!r}: expected an integer >= 1")
-    return n
 
 
 def add_arguments(p):
@@ -37,11 +18,11 @@ def add_arguments(p):
                         "summary.csv, summary.json, series.json")
     g = p.add_argument_group("engine")
     engine = g.add_mutually_exclusive_group()
-    engine.add_argument("--workers", metavar="N", type=_workers,
+    engine.add_argument("--workers", metavar="N", type=int,
                         help="local worker processes (default: the usable cores)")
     engine.add_argument("--scheduler", metavar="ADDRESS",
                         help="run on an existing Dask cluster, e.g. tcp://node17:8786")
-    g.add_argument("--shard", metavar="I/N", type=_shard,
+    g.add_argument("--shard", metavar="I/N",
                    help="take inputs I, I+N, I+2N, ... of the sorted list (I from 0), e.g. "
                         "one task of a SLURM job array")
     g.add_argument("--force", action="store_true",
@@ -53,17 +34,16 @@ def add_arguments(p):
     series.add_argument("--group-pattern", metavar="REGEX",
                         help="regular expression searched in each path; its first group "
                              "names the series, e.g. 'run_(\\w+)_chi'")
-    add_layout_arguments(p)
-    add_measure_arguments(p)
+    add_flags(p, *LAYOUT_FLAGS, *MEASURE_FLAGS, *RESOURCE_FLAGS)
 
 
 def run(args):
-    from .._batch import run_batch
+    from .._batch.run import run_batch
 
     summary = run_batch(args.inputs, args.out, workers=args.workers, scheduler=args.scheduler,
                         shard=args.shard, force=args.force, group_attr=args.group_attr,
                         group_pattern=args.group_pattern, progress=not args.quiet,
-                        **layout_options(args), **measure_options(args))
+                        options=profile_options(args))
     for row in summary.rows:
         if row["status"] == "failed":
             print(f"failed: {row['source']}: {row['error']}", file=sys.stderr)

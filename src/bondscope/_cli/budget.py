@@ -1,7 +1,6 @@
 """`bondscope budget`: the bond dimensions an error target needs, and their cost."""
 
-from ._common import (UsageError, add_layout_arguments, add_measure_arguments, print_json,
-                      read_input)
+from ._common import LAYOUT_FLAGS, RESOURCE_FLAGS, add_flags, print_json, read_input
 
 HELP = "smallest bond dimension per cut for a discarded-weight target, and its cost"
 ORDER = 21
@@ -15,25 +14,18 @@ def add_arguments(p):
                    help="discarded weight allowed at each cut")
     g.add_argument("--total", metavar="EPS", type=float,
                    help="sum of discarded weights allowed over all cuts (infidelity bound)")
-    p.add_argument("--split", choices=("equal", "pooled"), default="equal",
+    p.add_argument("--split", default="equal",
                    help="with --total: equal share per cut (default) or pooled smallest weights")
     p.add_argument("--dtype", metavar="DTYPE",
                    help="element type for the memory estimate (default: the stored dtype)")
     p.add_argument("--json", action="store_true", help="print the result as JSON")
-    add_layout_arguments(p)
-    add_measure_arguments(p)
+    add_flags(p, *LAYOUT_FLAGS, "route", "precision", *RESOURCE_FLAGS)
 
 
 def run(args):
-    import numpy as np
-
-    from .._budget import bond_budget
+    from .._analyses.budget import bond_budget
     from .._estimate import format_bytes
 
-    try:
-        np.dtype(args.dtype)
-    except TypeError:
-        raise UsageError(f"--dtype {args.dtype!r} is not a numpy dtype") from None
     prof = read_input(args.file, args, spectrum=True)
     res = bond_budget(prof, target=args.target, total=args.total, split=args.split,
                       dtype=args.dtype, local_dim=args.local_dim)

@@ -1,6 +1,6 @@
 """`bondscope compare`: convergence or time growth over profiles of one system."""
 
-from ._common import add_layout_arguments, add_measure_arguments, print_json, read_input
+from ._common import LAYOUT_FLAGS, RESOURCE_FLAGS, add_flags, print_json, read_input
 
 HELP = "compare profiles of one system: per-cut differences, convergence, extrapolation"
 ORDER = 22
@@ -11,18 +11,17 @@ def add_arguments(p):
                    help="two or more saved profiles or checkpoints of the same chain")
     p.add_argument("--tol", metavar="NATS", type=float, default=1e-3,
                    help="convergence threshold on the last per-cut change (default 1e-3 nats)")
-    p.add_argument("--series", choices=("auto", "bond", "time"), default="auto",
-                   help="runs at growing bond dimension, or snapshots in time (default: time "
-                        "when every document has a time field)")
+    p.add_argument("--series", default="auto",
+                   help="bond (runs at growing bond dimension), time (snapshots), or auto "
+                        "(default: time when every document has a time field)")
     p.add_argument("--json", action="store_true", help="print the result as JSON")
-    add_layout_arguments(p)
-    add_measure_arguments(p)
+    add_flags(p, *LAYOUT_FLAGS, "route", "precision", *RESOURCE_FLAGS)
 
 
 def run(args):
-    from .._comparison import checkpoint_meta, compare_profiles
-
     from pathlib import Path
+
+    from .._analyses.comparison import checkpoint_meta, compare_profiles
 
     profs = [read_input(f, args) for f in args.files]
     res = compare_profiles(profs, tol=args.tol, series=args.series,
@@ -51,4 +50,3 @@ def run(args):
         print(f"extrapolated to zero discarded weight: S({res['positions'][mid]}) = "
               f"{ext[mid]:.6g} nats")
     return 0
-

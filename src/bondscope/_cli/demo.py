@@ -28,7 +28,7 @@ def run(args):
     import h5py
 
     from .._pipeline import profile
-    from .._scaling import fit_scaling
+    from .._analyses.scaling import fit_scaling
     from .._text import profile_table
     from ._warnings import quiet_warnings
 

@@ -1,76 +1,90 @@
 """`bondscope plot`: draw a figure of one or more profiles (PNG, SVG or PDF)."""
 
-from ._common import UsageError, _renyi, add_layout_arguments, layout_options
+from ._common import (FIT_FLAGS, LAYOUT_FLAGS, UsageError, add_flags, fit_options,
+                      profile_options)
 
-HELP = "draw entropy, spectrum, budget, heatmap or convergence figures (PNG, SVG, PDF)"
+HELP = "draw a figure of profiles: entropy, spectrum, budget, heatmap, convergence, ..."
 ORDER = 40
 
-KINDS = ("entropy", "spectrum", "budget", "heatmap", "convergence")
-_SUFFIXES = (".png", ".svg", ".pdf")
 
-
-def _targets(text):
+def _numbers(text):
     try:
-        values = [float(t) for t in text.split(",") if t.strip()]
+        return [float(t) for t in text.split(",") if t.strip()]
     except ValueError:
         raise UsageError(f"--targets {text!r}: expected comma-separated numbers, "
                          "e.g. 1e-4,1e-6,1e-8") from None
-    bad = [v for v in values if not 0 < v < 1]
-    if not values or bad:
-        raise UsageError(f"--targets {text!r}: every target error must lie in (0, 1)")
-    return values
+
+
+# figure flags: dest (a keyword of the figure functions) -> (flags, argparse keywords);
+# each is passed to the kinds whose function takes it
+FIGURE_FLAGS = {
+    "targets": (("--targets",), dict(metavar="EPS", type=_numbers,
+                                     help="budget: target errors, comma-separated "
+                                          "(default: 1e-4,1e-6,1e-8)")),
+    "split": (("--split",), dict(help="budget: each target is per cut (cut, default), or "
+                                      "bounds the whole state spread equally (equal) or "
+                                      "pooled over the cuts (pooled)")),
+    "against": (("--against",), dict(help="convergence: x axis, discarded weight (weight, "
+                                          "default) or 1/chi (bond)")),
+    "tol": (("--degeneracy-tol",), dict(metavar="TOL", type=float,
+                                        help="spectrum: levels closer than TOL count as "
+                                             "degenerate (default 1e-6)")),
+    "max_level": (("--max-level",), dict(metavar="XI", type=float,
+                                         help="spectrum: upper limit of the level axis")),
+    "title": (("--title",), dict(help="figure title ('' for none)")),
+}
+
+
+def _kinds():
+    from .._figures._kinds import kinds
+
+    return kinds()
 
 
 def add_arguments(p):
     p.add_argument("sources", metavar="SOURCE", nargs="+",
                    help="checkpoint, saved profile, or batch results directory")
-    p.add_argument("--kind", choices=KINDS, default="entropy",
+    p.add_argument("--kind", choices=_kinds(), default="entropy",
                    help="what to draw (default: %(default)s)")
     p.add_argument("-o", "--output", metavar="FILE", required=True,
                    help="figure file; .png, .svg or .pdf picks the format")
     g = p.add_argument_group("figure options")
-    g.add_argument("--boundary", choices=("open", "periodic"),
-                   help="entropy: boundary condition for the central-charge fit "
-                        "(default: the checkpoint's 'boundary' attribute, else open)")
-    g.add_argument("--renyi", metavar="ALPHAS", type=_renyi, default=[],
-                   help="entropy: also draw Renyi entropies of these orders, e.g. 2,inf")
+    for dest, (flags, kw) in FIGURE_FLAGS.items():
+        g.add_argument(*flags, dest=dest, **kw)
     g.add_argument("--no-fit", action="store_true",
                    help="entropy: curves only, no central-charge fit or residual panel")
-    g.add_argument("--targets", metavar="EPS", type=_targets, default=[1e-4, 1e-6, 1e-8],
-                   help="budget: target errors, comma-separated (default: 1e-4,1e-6,1e-8)")
-    g.add_argument("--split", choices=("cut", "equal", "pooled"), default="cut",
-                   help="budget: each target is per cut (default), or bounds the whole state "
-                        "spread equally or pooled over the cuts")
-    g.add_argument("--against", choices=("weight", "bond"), default="weight",
-                   help="convergence: x axis, discarded weight or 1/chi (default: weight)")
-    g.add_argument("--title", help="figure title ('' for none)")
-    g.add_argument("--quiet", action="store_true", help="no warnings")
-    g.add_argument("--base", metavar="B", default="e",
-                   help="checkpoints: logarithm base, e (nats, default) or 2 (bits)")
-    add_layout_arguments(p)
+    add_flags(p, *FIT_FLAGS, *LAYOUT_FLAGS, "renyi", "base", "quiet")
 
 
-def figure_options(args):
-    """The figure function's keywords for the chosen kind."""
-    opts = {"title": args.title, "base": args.base, **layout_options(args)}
-    if args.kind == "entropy":
-        opts.update(boundary=args.boundary, renyi=args.renyi, fit=not args.no_fit)
-    elif args.kind == "budget":
-        opts.update(targets=args.targets, split=args.split)
-    elif args.kind == "convergence":
-        opts.update(against=args.against)
+def figure_options(args, draw):
+    """The keywords of figure function ``draw`` that the command line sets."""
+    import inspect
+
+    takes = inspect.signature(draw).parameters
+    opts = {"options": profile_options(args)}
+    given = {dest: getattr(args, dest) for dest in FIGURE_FLAGS if getattr(args, dest) is not None}
+    if args.renyi and "renyi" in takes:
+        given["renyi"] = args.renyi
+    settings = fit_options(args)
+    if args.no_fit or settings:
+        given["fit"] = False if args.no_fit else settings
+    if args.no_fit and settings:
+        raise UsageError("--no-fit with fit settings (" + ", ".join(
+            "--" + k.replace("_", "-") for k in settings) + "): choose one")
+    for dest, value in given.items():
+        if dest not in takes:
+            flag = "--no-fit or fit settings" if dest == "fit" else FIGURE_FLAGS[dest][0][0]
+            raise UsageError(f"{flag} does not apply to --kind {args.kind}")
+        opts[dest] = value
     return opts
 
 
 def run(args):
-    from pathlib import Path
-
-    if Path(args.output).suffix.lower() not in _SUFFIXES:
-        raise UsageError(f"-o {args.output}: the figure name must end in .png, .svg or .pdf")
-    from .._figure import plot
+    from .._figures._kinds import figure_function, plot
     from ._warnings import quiet_warnings
 
     with quiet_warnings(args.quiet):
-        plot(args.sources, args.kind, args.output, **figure_options(args))
+        plot(args.sources, args.kind, args.output,
+             **figure_options(args, figure_function(args.kind)))
     print(f"{args.kind} figure written to {args.output}")
     return 0

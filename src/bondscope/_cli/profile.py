@@ -2,7 +2,7 @@
 
 import sys
 
-from ._common import add_layout_arguments, add_measure_arguments, layout_options, measure_options
+from ._common import LAYOUT_FLAGS, MEASURE_FLAGS, RESOURCE_FLAGS, add_flags, profile_options
 
 HELP = "profile a checkpoint: Schmidt spectra and entropies at every cut"
 ORDER = 0
@@ -14,8 +14,7 @@ def add_arguments(p):
                    help="print the profile document as JSON on stdout (and nothing else there)")
     p.add_argument("-o", "--output", metavar="OUT",
                    help="also save the profile: .json, .h5 (a new results file) or .csv")
-    add_layout_arguments(p)
-    add_measure_arguments(p)
+    add_flags(p, *LAYOUT_FLAGS, *MEASURE_FLAGS, *RESOURCE_FLAGS)
 
 
 def run(args):
@@ -24,8 +23,7 @@ def run(args):
     from ._warnings import quiet_warnings
 
     with quiet_warnings(args.quiet):
-        prof = profile(args.file, progress=not args.quiet, **layout_options(args),
-                       **measure_options(args))
+        prof = profile(args.file, profile_options(args), progress=not args.quiet)
     if args.output:
         prof.save(args.output, protect=[args.file])
     if args.json:

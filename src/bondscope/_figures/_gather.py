@@ -8,18 +8,19 @@ profile file).  Every source becomes one or more :class:`Entry` objects.
 
 import json
 import math
-import re
 from pathlib import Path
 
-from ._errors import CheckpointError
+from .._errors import CheckpointError
+from .._runinfo import RUN_ATTRS, run_attributes
+from .._text import natural_key
 
-__all__ = ["Entry", "collect", "read_results", "entries_of_rows", "row_labels", "natural_key",
-           "same_base", "SPECTRUM_HINT"]
+__all__ = ["Entry", "collect", "read_results", "entries_of_rows", "row_labels", "same_base",
+           "SPECTRUM_HINT"]
 
 SPECTRUM_HINT = "rerun `bondscope profile CHECKPOINT --spectrum -o PROFILE`"
 
 # top-level profile fields, summary columns or checkpoint attributes read as metadata
-_META_KEYS = ("time", "time_unit", "bond_dim", "series", "boundary", "max_discarded_weight")
+_META_KEYS = RUN_ATTRS
 # summary columns taken over (its max_discarded_weight is of the profiling truncation, not the run)
 _ROW_KEYS = ("time", "time_unit", "bond_dim", "series")
 
@@ -55,26 +56,6 @@ class Entry:
 
     def __repr__(self):
         return f"<Entry {self.label!r} from {self.origin!r}>"
-
-
-def natural_key(text):
-    """Sort key putting 'run2' before 'run10'."""
-    return [int(t) if t.isdigit() else t for t in re.split(r"(\d+)", str(text))]
-
-
-def _checkpoint_meta(path):
-    import h5py
-
-    meta = {}
-    try:
-        with h5py.File(path, "r") as f:
-            for key in _META_KEYS:
-                if key in f.attrs:
-                    value = f.attrs[key]
-                    meta[key] = value.item() if hasattr(value, "item") else value
-    except OSError:
-        pass
-    return {k: (v.decode() if isinstance(v, bytes) else v) for k, v in meta.items()}
 
 
 def _profile_meta(prof):
@@ -172,13 +153,13 @@ def row_labels(rows):
 
 def entries_of_rows(rows, spectrum=False):
     """Entries for the ok rows of a batch, with the summary's time and bond dimension."""
-    from ._document import load_profile
+    from .._document import load_profile
 
     ok = [r for r in rows if r["ok"]]
     entries = []
     for r, label in zip(ok, row_labels(ok)):
         prof = load_profile(r["profile"])
-        meta = _checkpoint_meta(r["source"]) if Path(r["source"]).is_file() else {}
+        meta = run_attributes(r["source"])
         meta.update(_profile_meta(prof))
         meta.update({k: r[k] for k in _ROW_KEYS if r.get(k) is not None})
         entries.append(_needs_spectra(Entry(label, prof, r["profile"], meta), spectrum))
@@ -193,7 +174,7 @@ def _from_results(directory, spectrum):
     return entries_of_rows(rows, spectrum)
 
 
-def collect(sources, *, spectrum=False, **options):
+def collect(sources, *, spectrum=False, options=None):
     """Labelled profiles for a list of sources (see the module docstring).
 
     Parameters
@@ -202,8 +183,8 @@ def collect(sources, *, spectrum=False, **options):
     spectrum : bool
         The figure needs Schmidt values: checkpoints are profiled with
         ``spectrum=True``; a saved profile without them is an error.
-    **options
-        Passed to :func:`bondscope.profile` for checkpoints (layout, ``renyi``, ``base``).
+    options : ProfileOptions, optional
+        How checkpoints are profiled (layout, ``renyi``, ``base``, ...).
 
     Returns
     -------
@@ -217,7 +198,7 @@ def collect(sources, *, spectrum=False, **options):
     OSError
         A path that does not exist.
     """
-    from ._document import Profile, is_saved_profile, load_profile
+    from .._document import Profile, is_saved_profile, load_profile
 
     if isinstance(sources, (str, Path, Profile, Entry)):
         sources = [sources]
@@ -251,13 +232,10 @@ def collect(sources, *, spectrum=False, **options):
 
 
 def _profile_checkpoint(path, spectrum, options):
-    from ._pipeline import profile
+    from .._pipeline import profile
 
-    opts = {k: v for k, v in options.items() if v is not None}
-    if spectrum:
-        opts["spectrum"] = True
-    prof = profile(path, **opts)
-    meta = _checkpoint_meta(path)
+    prof = profile(path, options, **({"spectrum": True} if spectrum else {}))
+    meta = run_attributes(path)
     meta.update(_profile_meta(prof))
     return Entry(path.stem, prof, str(path), meta)
 

@@ -2,7 +2,7 @@
 
 import numpy as np
 
-from ._diagnostics import as_profile
+from .inputs import as_profile
 
 __all__ = ["bond_budget", "SPLITS"]
 
@@ -121,7 +121,13 @@ def bond_budget(source, *, target=None, total=None, split="equal", dtype=None, l
     if not 0.0 <= eps < 1.0:
         raise ValueError(f"error target must be in [0, 1), found {eps!r}")
     if split not in SPLITS:
-        raise ValueError(f"split must be one of {SPLITS}, found {split!r}")
+        raise ValueError(f"split (--split) must be one of {', '.join(SPLITS)}, found {split!r}")
+    if dtype is not None:
+        try:
+            np.dtype(dtype)
+        except TypeError:
+            raise ValueError(f"dtype (--dtype) {dtype!r} is not a numpy dtype, e.g. float64 or "
+                             "complex128") from None
     prof = as_profile(source, spectra=True)
     cuts = sorted(prof.cuts, key=lambda c: c["position"])
     where = prof.source or "profile"

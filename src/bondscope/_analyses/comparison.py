@@ -6,7 +6,8 @@ from pathlib import Path
 
 import numpy as np
 
-from ._diagnostics import as_profile, nats_per_unit
+from .._runinfo import run_attributes
+from .inputs import as_profile, nats_per_unit
 
 __all__ = ["compare_profiles", "extrapolate", "Extrapolation", "checkpoint_meta", "SERIES"]
 
@@ -88,25 +89,15 @@ def extrapolate(x, y):
 def checkpoint_meta(path):
     """Root attributes ``time`` and ``max_discarded_weight`` of an HDF5 checkpoint.
 
-    Returns an empty dict for saved profiles and files without them.
+    Returns an empty dict for saved profiles and files without them; values
+    that are not finite numbers are left out.
     """
-    path = Path(path)
-    if path.suffix.lower() not in (".h5", ".hdf5") or not path.is_file():
-        return {}
-    import h5py
-
-    try:
-        with h5py.File(path, "r") as f:
-            if "bondscope_profile" in f:
-                return {}
-            return {k: float(f.attrs[k]) for k in _META_ATTRS
-                    if k in f.attrs and np.ndim(f.attrs[k]) == 0}
-    except (OSError, TypeError, ValueError):
-        return {}
+    return {k: float(v) for k, v in run_attributes(path, _META_ATTRS).items() if _number(v)}
 
 
 def _number(value):
-    return isinstance(value, (int, float, np.integer, np.floating)) and np.isfinite(value)
+    return (isinstance(value, (int, float, np.integer, np.floating))
+            and not isinstance(value, bool) and bool(np.isfinite(value)))
 
 
 def _run_weight(prof, meta):

@@ -4,7 +4,8 @@ import math
 
 import numpy as np
 
-from ._diagnostics import as_profile, nats_per_unit, spectrum_diagnostics
+from .diagnostics import spectrum_diagnostics
+from .inputs import as_profile, nats_per_unit
 
 __all__ = ["fit_scaling", "parse_window", "page_entropy", "BOUNDARIES", "CORRECTIONS"]
 
@@ -62,21 +63,21 @@ def parse_window(window, sites):
     if isinstance(window, str):
         parts = window.split(":")
         if len(parts) != 2:
-            raise ValueError(f"window {window!r} is not of the form A:B")
+            raise ValueError(f"window (--window) {window!r} is not of the form A:B")
         try:
             window = tuple(int(p) if p.strip() else None for p in parts)
         except ValueError:
-            raise ValueError(f"window {window!r}: A and B must be integers") from None
+            raise ValueError(f"window (--window) {window!r}: A and B must be integers") from None
     try:
         a, b = window
     except (TypeError, ValueError):
-        raise ValueError(f"window {window!r} is not a pair (A, B)") from None
+        raise ValueError(f"window (--window) {window!r} is not a pair (A, B)") from None
     a = 1 if a is None else a
     b = sites - 1 if b is None else b
     if not all(isinstance(v, (int, np.integer)) for v in (a, b)):
-        raise ValueError(f"window ({a!r}, {b!r}): A and B must be integers")
+        raise ValueError(f"window (--window) ({a!r}, {b!r}): A and B must be integers")
     if not 1 <= a <= b <= sites - 1:
-        raise ValueError(f"window {a}:{b} is not within 1..{sites - 1} with A <= B")
+        raise ValueError(f"window (--window) {a}:{b} is not within 1..{sites - 1} with A <= B")
     return int(a), int(b)
 
 
@@ -214,7 +215,8 @@ def fit_scaling(source, *, boundary="open", window=None, corrections=None, parit
     .. [3] D. N. Page, PRL 71, 1291 (1993): the volume-law reference.
     """
     if boundary not in BOUNDARIES:
-        raise ValueError(f"boundary must be one of {BOUNDARIES}, found {boundary!r}")
+        raise ValueError(f"boundary (--boundary) must be one of {', '.join(BOUNDARIES)}, "
+                         f"found {boundary!r}")
     if corrections is None:
         corrections = CORRECTIONS if boundary == "open" else ()
     elif isinstance(corrections, str):
@@ -222,9 +224,11 @@ def fit_scaling(source, *, boundary="open", window=None, corrections=None, parit
     corrections = tuple(dict.fromkeys(corrections))
     unknown = [c for c in corrections if c not in CORRECTIONS]
     if unknown:
-        raise ValueError(f"unknown correction {unknown[0]!r}; choose from {CORRECTIONS}")
+        raise ValueError(f"unknown correction {unknown[0]!r} (corrections=, --corrections); "
+                         f"choose from {', '.join(CORRECTIONS)} or none")
     if not parity_exponent > 0:
-        raise ValueError(f"parity_exponent must be > 0, found {parity_exponent!r}")
+        raise ValueError(f"parity_exponent (--parity-exponent) must be > 0, "
+                         f"found {parity_exponent!r}")
     prof = as_profile(source, spectra=spectrum_report)
     sites = prof.sites
     if sites < 3:
@@ -252,7 +256,7 @@ def fit_scaling(source, *, boundary="open", window=None, corrections=None, parit
     best = run(a, b)
     if best is None:
         held = int(((l_all >= a) & (l_all <= b)).sum())
-        raise ValueError(f"window {a}:{b} holds {held} cuts; a fit with {n_par} parameters "
+        raise ValueError(f"window (--window) {a}:{b} holds {held} cuts; a fit with {n_par} parameters "
                          f"needs at least {n_par + 1} (use --window or fewer corrections)")
     sel, (coef, resid, cov) = best
     c = float(coef[0])

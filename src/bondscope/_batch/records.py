@@ -1,0 +1,91 @@
+"""What a batch stores per checkpoint: fingerprints, resumable results and their measures.
+
+A result is the checkpoint's Profile document with a top-level ``batch``
+record: the checkpoint's fingerprint, the options that decided the result,
+its run attributes, wall time and warnings.
+"""
+
+import hashlib
+import json
+import os
+
+from .._runinfo import file_attributes
+
+__all__ = ["RECORD_VERSION", "ROW_ATTRS", "fingerprint", "resumed", "remove_leftovers",
+           "measures"]
+
+RECORD_VERSION = 1
+# root attributes copied into each result and its summary row
+ROW_ATTRS = ("time", "time_unit", "bond_dim")
+
+
+def fingerprint(path, group_attr=None):
+    """(fingerprint, root attributes) of a checkpoint; metadata None when unreadable."""
+    import h5py
+
+    st = os.stat(path)
+    digest = hashlib.sha256()
+    attrs = {}
+
+    def visit(name, obj):
+        if isinstance(obj, h5py.Dataset):
+            digest.update(f"D {name} {obj.shape} {obj.dtype}\n".encode())
+        else:
+            digest.update(f"G {name}\n".encode())
+
+    try:
+        with h5py.File(path, "r") as f:
+            f.visititems(visit)
+            attrs = file_attributes(f, (*ROW_ATTRS, group_attr))
+        metadata = digest.hexdigest()
+    except Exception:  # unreadable in any way: never skipped; profiling says why
+        metadata = None
+    return {"size": st.st_size, "mtime_ns": st.st_mtime_ns, "metadata": metadata}, attrs
+
+
+def resumed(plan, recorded, group_attr):
+    """The skipped row of a checkpoint whose stored result still holds, else None."""
+    try:
+        with open(plan["target"], encoding="utf-8") as f:
+            doc = json.load(f)
+    except (OSError, ValueError):
+        return None
+    record = doc.get("batch") if isinstance(doc, dict) else None
+    if not isinstance(record, dict) or record.get("version") != RECORD_VERSION \
+            or record.get("options") != recorded:
+        return None
+    try:
+        stamp, attrs = fingerprint(plan["path"], group_attr)
+    except OSError:
+        return None
+    if stamp["metadata"] is None or record.get("fingerprint") != stamp:
+        return None
+    return {"key": plan["key"], "status": "skipped", "attrs": attrs, **measures(doc)}
+
+
+def remove_leftovers(directory, keys):
+    """Delete temporary files of interrupted writes (named by atomic_write) of these keys."""
+    for entry in os.scandir(directory):
+        name = entry.name
+        if name.startswith(".") and name.endswith(".part"):
+            key = name[1:].rpartition(".json.")[0]
+            if key in keys:
+                os.unlink(entry.path)
+
+
+def measures(doc):
+    cuts = doc.get("cuts", [])
+    entropies = [c["entropy"] for c in cuts]
+    middle = [c["entropy"] for c in cuts if c["position"] == doc["sites"] // 2]
+    bonds = [c["bond_dimension"] for c in cuts if "bond_dimension" in c]
+    trunc = doc.get("truncation")
+    weights = [c["discarded_weight"] for c in cuts if "discarded_weight" in c]
+    record = doc.get("batch", {})
+    return {"kind": doc.get("kind"), "sites": doc.get("sites"),
+            "max_entropy": max(entropies) if entropies else None,
+            "middle_entropy": middle[0] if middle else None,
+            "max_bond_dimension": max(bonds) if bonds else None,
+            "max_discarded_weight": max(weights) if trunc and weights else None,
+            "infidelity": trunc.get("infidelity") if trunc else None,
+            "wall_seconds": record.get("wall_seconds"),
+            "warnings": "; ".join(record.get("warnings", []))}

@@ -1,0 +1,153 @@
+"""Convergence figure: middle-cut entropy against discarded weight or 1/chi."""
+
+import math
+
+import numpy as np
+
+from .._text import entropy_unit
+from .._docs import filled
+from .._options import ProfileOptions
+from ._gather import collect, same_base
+from ._style import INK, curve_look, new_figure, style, titled
+
+__all__ = ["convergence_figure"]
+
+
+def _discarded(entry):
+    value = entry.meta.get("max_discarded_weight", entry.profile.get("discarded_weight"))
+    if not isinstance(value, (int, float)):
+        raise ValueError(f"{entry.label}: the run's discarded weight is unknown (no "
+                         "'max_discarded_weight' attribute in its checkpoint); plot against "
+                         "1/chi instead (--against bond)")
+    return float(value)
+
+
+def _inverse_bond(entry):
+    chi = entry.max_bond
+    if not chi:
+        raise ValueError(f"{entry.label}: no bond dimension known; use against='weight'")
+    return 1.0 / chi
+
+
+def _limit(members, x):
+    """The comparison's extrapolation S = S0 + a x at the middle cut, in nats.
+
+    Each profile goes to :func:`bondscope._analyses.comparison.compare_profiles` with
+    ``x`` as its run-level ``discarded_weight`` (and its own truncation
+    fields left out), so the extrapolation is linear in the plotted quantity.
+    """
+    from .._analyses.comparison import compare_profiles
+
+    docs = []
+    for (entry, _), xv in zip(members, x):
+        doc = entry.profile.to_dict()
+        doc.pop("truncation", None)
+        for cut in doc["cuts"]:
+            cut.pop("discarded_weight", None)
+        doc["discarded_weight"] = float(xv)
+        docs.append(doc)
+    result = compare_profiles(docs, series="bond")
+    fit = result["extrapolation"]
+    if fit is None:
+        raise ValueError(f"no extrapolation: {result['extrapolation_note']}")
+    middle = members[0][0].profile.sites // 2
+    if middle not in result["positions"]:
+        raise ValueError(f"no common cut at the middle position {middle}")
+    at = result["positions"].index(middle)
+    return {"position": middle, "value": fit["entropies"][at], "slope": fit["slopes"][at],
+            "units": "nats", "converged": result["converged"], "verdict": result["verdict"]}
+
+
+@filled
+def convergence_figure(sources, *, against="weight", title=None, options=None,
+                       **profiling):
+    """Middle-cut entropy across a series against discarded weight or 1/χ, extrapolated.
+
+    Sources are grouped by their ``series`` (from a batch; otherwise all are
+    one group).  Each group is extrapolated to zero by the comparison's
+    linear fit (:func:`bondscope._analyses.comparison.compare_profiles`) in the
+    plotted quantity; the left panel shows the fit reaching the axis, the
+    right one the same points on a logarithmic axis against the limit.
+
+    Parameters
+    ----------
+    sources : list of sources
+        At least two per group, of one chain length.
+    against : {"weight", "bond"}
+        x axis: each run's largest discarded weight (the checkpoint
+        attribute ``max_discarded_weight``, or a top-level profile field
+        ``discarded_weight``), or 1/χ with χ its bond dimension (the
+        ``bond_dim`` attribute, else the largest stored one).
+    title : str, optional
+    %(profiling)s
+
+    %(figure_returns)s
+        The limits are in ``fig.bondscope_limits``: per group ``series``,
+        ``value`` (in the figure's unit), ``slope``, ``position``, ``verdict``.
+
+    Raises
+    ------
+    ValueError
+        Fewer than two sources in a group, a source without the x quantity,
+        or equal x for all sources.
+    """
+    measure = {"weight": _discarded, "bond": _inverse_bond}.get(against)
+    if measure is None:
+        raise ValueError(f"against must be 'weight' or 'bond', found {against!r}")
+    entries = collect(sources, options=ProfileOptions.from_kwargs(options, **profiling))
+    scales, base = same_base(entries)
+    to_unit = 1.0 / math.log(base)
+    groups = {}
+    for entry, scale in zip(entries, scales):
+        groups.setdefault(entry.meta.get("series"), []).append((entry, scale))
+    xlabel = ("largest discarded weight ε" if against == "weight"
+              else "inverse bond dimension 1/χ")
+    limits = []
+    with style():
+        fig = new_figure(9.0, 4.0)
+        ax, zoom = fig.subplots(1, 2, sharey=True, width_ratios=(1.15, 1))
+        for i, (name, members) in enumerate(groups.items()):
+            if len(members) < 2:
+                raise ValueError(f"series {name or '(all sources)'}: convergence needs at "
+                                 f"least two sources, found {len(members)}")
+            members.sort(key=lambda m: -measure(m[0]))
+            x = np.array([measure(e) for e, _ in members])
+            y = np.array([_middle(e) * k for e, k in members])
+            limit = _limit(members, x)
+            value, slope = limit["value"] * to_unit, limit["slope"] * to_unit
+            look = curve_look(i)
+            grid = np.linspace(0.0, x.max() * 1.05, 50)
+            ax.plot(grid, value + slope * grid, color=look["color"], lw=1.0, ls=(0, (4, 2)))
+            ax.plot(x, y, ls="none", label=name or "middle-cut entropy", **look)
+            ax.plot([0.0], [value], marker="*", ms=12, mfc="white", mec=look["color"],
+                    mew=1.3, ls="none", clip_on=False, label=f"extrapolated: {value:.6g}")
+            zoom.axhline(value, color=look["color"], lw=0.9, ls=(0, (4, 2)))
+            zoom.plot(x, y, ls="-", lw=0.8, **look)
+            for (e, _), xv, yv in zip(members, x, y):
+                chi = e.max_bond
+                zoom.annotate(f"χ={chi}" if chi else e.label, (xv, yv), xytext=(0, 7),
+                              textcoords="offset points", ha="center", fontsize=7.5,
+                              color=INK)
+            limits.append({"series": name, **limit, "value": value, "slope": slope,
+                           "units": entropy_unit(base)})
+        ax.set_xlim(left=0.0)
+        ax.set_xlabel(xlabel)
+        ax.set_ylabel(f"S(N/2) [{entropy_unit(base)}]")
+        ax.legend(loc="best")
+        zoom.set_xscale("log")
+        zoom.set_xlabel(xlabel + " (log scale)")
+        zoom.set_title("the approach to the limit", fontweight="normal", fontsize=9)
+        fig.bondscope_limits = limits
+        return titled(fig, ax, title, "Convergence of the middle-cut entropy")
+
+
+def _middle(entry):
+    prof = entry.profile
+    at = np.flatnonzero(prof.positions == prof.sites // 2)
+    if at.size == 0:
+        raise ValueError(f"{entry.label}: no cut at the middle position {prof.sites // 2}")
+    return float(prof.entropies[at[0]])
+
+
+# the figure this kind draws (bondscope._figures._kinds)
+DRAW = convergence_figure
