@@ -70,3 +70,31 @@ def batch_dir(dest):
     run_batch([*inputs, broken], dest / "out", workers=1, spectrum=True,
               group_pattern=r"(\w+)_chi\d+", threads=1)
     return dest / "out", [*inputs, broken]
+
+
+def spin_one_heisenberg(L=8):
+    """Ground state of the open spin-1 Heisenberg chain H = sum S_i . S_{i+1} (exact diag.).
+
+    Its ground state is a singlet (Lieb & Mattis, J. Math. Phys. 3, 749 (1962), for a
+    bipartite chain with equal sublattices), so every reduced density matrix commutes
+    with the total spin of its block: the entanglement spectrum comes in SU(2)
+    multiplets of sizes 2S + 1 = 1, 3, 5, 7, ...  Returns the normalised state vector,
+    site 0 the slowest index, of length 3**L.
+    """
+    import scipy.sparse as sp
+
+    from reference.spin import ground_state
+
+    r2 = np.sqrt(2.0)
+    sp_ = sp.csr_matrix(np.array([[0, r2, 0], [0, 0, r2], [0, 0, 0]]))  # S+ for spin 1
+    sz = sp.csr_matrix(np.diag([1.0, 0.0, -1.0]))
+
+    def at(op, i):
+        return sp.kron(sp.kron(sp.identity(3**i), op), sp.identity(3 ** (L - i - 1)),
+                       format="csr")
+
+    H = sp.csr_matrix((3**L, 3**L))
+    for i in range(L - 1):
+        H = H + at(sz, i) @ at(sz, i + 1) + 0.5 * (at(sp_, i) @ at(sp_.T, i + 1)
+                                                  + at(sp_.T, i) @ at(sp_, i + 1))
+    return ground_state(H.tocsr())[1]

@@ -17,8 +17,8 @@ from ._document import FORMAT
 from ._errors import CheckpointError
 
 __all__ = ["atomic_write", "format_of", "SUFFIXES", "H5_GROUP", "json_default", "json_text",
-           "csv_text", "write_h5_group", "read_h5_group", "is_profile_h5", "write_document",
-           "read_document"]
+           "csv_text", "write_h5_group", "read_h5_group", "is_profile_h5", "refuse_overwrite",
+           "write_document", "read_document"]
 
 H5_GROUP = "bondscope_profile"
 _COLUMNS = ("position", "bond_dimension", "schmidt_rank", "entropy", "resolution_floor",
@@ -144,14 +144,22 @@ def _write(doc, kind, path):
             write_h5_group(doc, f.create_group(H5_GROUP))
 
 
+def refuse_overwrite(path, protect, what="the checkpoint"):
+    """Raise ValueError when ``path`` is one of the files ``protect`` (an input)."""
+    path = Path(path)
+    if not path.exists():
+        return
+    for other in protect:
+        if Path(other).exists() and path.samefile(other):
+            raise ValueError(f"{path}: refusing to write over {what}; "
+                             "choose another output name")
+
+
 def write_document(doc, path, protect=()):
     """:meth:`bondscope.Profile.save` of a document dict (same errors)."""
     path = Path(path)
     kind = format_of(path)
-    for other in protect:
-        if path.exists() and Path(other).exists() and path.samefile(other):
-            raise ValueError(f"{path}: refusing to write over the checkpoint; "
-                             "choose another output name")
+    refuse_overwrite(path, protect)
     if kind == "h5" and path.exists() and not is_profile_h5(path):
         raise OSError(f"{path}: exists and is not a bondscope results file; "
                       "choose another output name")

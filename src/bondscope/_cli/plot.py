@@ -24,7 +24,9 @@ FIGURE_FLAGS = {
     "split": (("--split",), dict(help="budget: each target is per cut (cut, default), or "
                                       "bounds the whole state spread equally (equal) or "
                                       "pooled over the cuts (pooled)")),
-    "against": (("--against",), dict(help="convergence: x axis, discarded weight (weight, "
+    "against": (("--against",), dict(help="x axis. entropy: cut position (cut, default), "
+                                          "fraction l/N (fraction) or ln of the chord length "
+                                          "(chord); convergence: discarded weight (weight, "
                                           "default) or 1/chi (bond)")),
     "tol": (("--degeneracy-tol",), dict(metavar="TOL", type=float,
                                         help="spectrum: levels closer than TOL count as "
@@ -81,10 +83,11 @@ def figure_options(args, draw):
 
 def run(args):
     from .._figures._kinds import figure_function, plot
+    from .._figures._names import visible
     from ._warnings import quiet_warnings
 
     with quiet_warnings(args.quiet):
         plot(args.sources, args.kind, args.output,
              **figure_options(args, figure_function(args.kind)))
-    print(f"{args.kind} figure written to {args.output}")
+    print(f"{args.kind} figure written to {visible(args.output)}")
     return 0

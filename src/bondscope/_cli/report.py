@@ -17,11 +17,12 @@ def add_arguments(p):
 
 
 def run(args):
+    from .._figures._names import visible
     from .._report import write_report
     from ._warnings import quiet_warnings
 
     with quiet_warnings():
         path = write_report(args.results, args.output, title=args.title,
                             fit=False if args.no_fit else (fit_options(args) or True))
-    print(f"report written to {path}")
+    print(f"report written to {visible(path)}")
     return 0

@@ -56,17 +56,25 @@ def plot(sources, kind="entropy", output=None, **options):
     Raises
     ------
     ValueError
-        An unknown kind, or an output suffix that is not .png, .svg or .pdf
-        (checked before anything is drawn).
+        An unknown kind, an output suffix that is not .png, .svg or .pdf, or
+        an output that is one of the inputs (a checkpoint named ``ck.pdf``,
+        or a checkpoint of a results directory); checked before anything
+        is drawn.
     TypeError
         An option the chosen figure does not take.
     """
+    from .._files import refuse_overwrite
+    from ._gather import input_files
     from ._style import FORMATS, save_figure
 
     draw = figure_function(kind)
-    if output is not None and Path(output).suffix.lower() not in FORMATS:
-        raise ValueError(f"{output}: use a .png, .svg or .pdf name for the figure")
+    inputs = []
+    if output is not None:
+        if Path(output).suffix.lower() not in FORMATS:
+            raise ValueError(f"{output}: use a .png, .svg or .pdf name for the figure")
+        inputs = input_files(sources)
+        refuse_overwrite(output, inputs, "an input of the figure")
     fig = draw(sources, **options)
     if output is not None:
-        save_figure(fig, output)
+        save_figure(fig, output, protect=inputs)
     return fig

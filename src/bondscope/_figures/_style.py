@@ -89,8 +89,26 @@ def marker_size(n_points):
     return 4.5 if n_points <= 30 else 3.0
 
 
-def curve_look(i):
-    return dict(color=COLOURS[i % 7], marker=MARKERS[i % len(MARKERS)])
+# colours for curves: Okabe-Ito without yellow (too faint on white for a line)
+_LINE_COLOURS = COLOURS[:7]
+
+
+def curve_look(i, n=1):
+    """Colour and marker of curve ``i`` of ``n``.
+
+    Up to seven curves take the Okabe-Ito colours; more take evenly spaced
+    colours of the cividis map in curve order (a series ordered by bond
+    dimension or time reads as a gradient), so no two curves share a
+    colour.  Markers cycle through eight shapes.
+    """
+    if n <= len(_LINE_COLOURS):
+        colour = _LINE_COLOURS[i % len(_LINE_COLOURS)]
+    else:
+        from matplotlib import colormaps
+        from matplotlib.colors import to_hex
+
+        colour = to_hex(colormaps[COLOUR_MAP](0.9 * i / (n - 1)))
+    return dict(color=colour, marker=MARKERS[i % len(MARKERS)])
 
 
 def cut_label(ax):
@@ -124,11 +142,20 @@ def figure_bytes(fig, fmt="png", *, dpi=150):
     return buf.getvalue()
 
 
-def save_figure(fig, output, *, dpi=150):
+def save_figure(fig, output, *, dpi=150, protect=()):
     """Write a figure as PNG, SVG or PDF, chosen by the suffix of ``output``.
 
     The file is written whole or not at all, and carries no timestamp, so the
     same data give the same bytes.
+
+    Parameters
+    ----------
+    fig : matplotlib.figure.Figure
+    output : str or Path
+    dpi : float
+        Resolution of a PNG.
+    protect : iterable of paths
+        Files never to write over (the figure's inputs).
 
     Returns
     -------
@@ -138,14 +165,15 @@ def save_figure(fig, output, *, dpi=150):
     Raises
     ------
     ValueError
-        A suffix other than .png, .svg or .pdf.
+        A suffix other than .png, .svg or .pdf, or ``output`` is a protected file.
     """
-    from .._files import atomic_write
+    from .._files import atomic_write, refuse_overwrite
 
     path = Path(output)
     fmt = FORMATS.get(path.suffix.lower())
     if fmt is None:
         raise ValueError(f"{path}: cannot tell the figure format from {path.suffix or 'no'} "
                          f"suffix; use one of {', '.join(FORMATS)}")
+    refuse_overwrite(path, protect, "an input of the figure")
     data = figure_bytes(fig, fmt, dpi=dpi)
     return atomic_write(path, lambda tmp: Path(tmp).write_bytes(data))

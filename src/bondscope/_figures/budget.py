@@ -1,5 +1,7 @@
 """Budget figure: the bond dimension needed per cut for target errors."""
 
+import math
+
 import numpy as np
 
 from .._docs import filled
@@ -73,7 +75,7 @@ def budget_figure(sources, *, targets=(1e-4, 1e-6, 1e-8), split="cut", title=Non
             return bond_budget(prof, target=eps)
         return bond_budget(prof, total=eps, split=split)
 
-    budgets = []
+    budgets, top = [], 1
     with style():
         fig = new_figure(max(6.4, 4.0 * len(entries) + 2.6), 4.2)
         axes = np.atleast_1d(fig.subplots(1, len(entries), sharey=True, squeeze=False)[0])
@@ -89,14 +91,17 @@ def budget_figure(sources, *, targets=(1e-4, 1e-6, 1e-8), split="cut", title=Non
                 need = [c["bond_dimension"] for c in result["cuts"]]
                 ax.plot([c["position"] for c in result["cuts"]], need, lw=1.2,
                         ms=marker_size(len(x)), drawstyle="steps-mid",
-                        label=_budget_text(eps, result), **curve_look(i))
+                        label=_budget_text(eps, result), **curve_look(i, len(targets)))
+                top = max([top, *need])
             budgets.append({"label": entry.label, "budgets": found})
             ax.set_yscale("log", base=2)
             ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:g}"))
-            ax.set_ylim(bottom=1)
-            ax.set_title(entry.label, fontweight="normal", fontsize=9)
+            top = max(top, int(stored.max()))
+            ax.set_title(entry.text, fontweight="normal", fontsize=9)
             cut_label(ax)
             ax.legend(title=_SPLITS[split], title_fontsize=8, fontsize=7.5, loc="lower center")
+        # one scale for every panel, up to the largest chi of any (shared axes)
+        axes[0].set_ylim(1, 2 ** (math.log2(max(top, 2)) + 0.35))
         axes[0].set_ylabel("bond dimension χ")
         if title is None:
             title = "Bond dimension needed per cut"

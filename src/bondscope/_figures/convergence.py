@@ -8,6 +8,7 @@ from .._text import entropy_unit
 from .._docs import filled
 from .._options import ProfileOptions
 from ._gather import collect, same_base
+from ._names import figure_text, visible
 from ._style import INK, curve_look, new_figure, style, titled
 
 __all__ = ["convergence_figure"]
@@ -16,7 +17,7 @@ __all__ = ["convergence_figure"]
 def _discarded(entry):
     value = entry.meta.get("max_discarded_weight", entry.profile.get("discarded_weight"))
     if not isinstance(value, (int, float)):
-        raise ValueError(f"{entry.label}: the run's discarded weight is unknown (no "
+        raise ValueError(f"{visible(entry.label)}: the run's discarded weight is unknown (no "
                          "'max_discarded_weight' attribute in its checkpoint); plot against "
                          "1/chi instead (--against bond)")
     return float(value)
@@ -25,7 +26,8 @@ def _discarded(entry):
 def _inverse_bond(entry):
     chi = entry.max_bond
     if not chi:
-        raise ValueError(f"{entry.label}: no bond dimension known; use against='weight'")
+        raise ValueError(f"{visible(entry.label)}: no bond dimension known; "
+                         "use against='weight'")
     return 1.0 / chi
 
 
@@ -102,32 +104,29 @@ def convergence_figure(sources, *, against="weight", title=None, options=None,
         groups.setdefault(entry.meta.get("series"), []).append((entry, scale))
     xlabel = ("largest discarded weight ε" if against == "weight"
               else "inverse bond dimension 1/χ")
-    limits = []
+    limits, marks = [], []
     with style():
         fig = new_figure(9.0, 4.0)
         ax, zoom = fig.subplots(1, 2, sharey=True, width_ratios=(1.15, 1))
         for i, (name, members) in enumerate(groups.items()):
             if len(members) < 2:
-                raise ValueError(f"series {name or '(all sources)'}: convergence needs at "
-                                 f"least two sources, found {len(members)}")
+                raise ValueError(f"series {visible(name) if name else '(all sources)'}: "
+                                 f"convergence needs at least two sources, found {len(members)}")
             members.sort(key=lambda m: -measure(m[0]))
             x = np.array([measure(e) for e, _ in members])
             y = np.array([_middle(e) * k for e, k in members])
             limit = _limit(members, x)
             value, slope = limit["value"] * to_unit, limit["slope"] * to_unit
-            look = curve_look(i)
+            look = curve_look(i, len(groups))
             grid = np.linspace(0.0, x.max() * 1.05, 50)
             ax.plot(grid, value + slope * grid, color=look["color"], lw=1.0, ls=(0, (4, 2)))
-            ax.plot(x, y, ls="none", label=name or "middle-cut entropy", **look)
+            ax.plot(x, y, ls="none", label=figure_text(name) if name else "middle-cut entropy",
+                    **look)
             ax.plot([0.0], [value], marker="*", ms=12, mfc="white", mec=look["color"],
                     mew=1.3, ls="none", clip_on=False, label=f"extrapolated: {value:.6g}")
             zoom.axhline(value, color=look["color"], lw=0.9, ls=(0, (4, 2)))
             zoom.plot(x, y, ls="-", lw=0.8, **look)
-            for (e, _), xv, yv in zip(members, x, y):
-                chi = e.max_bond
-                zoom.annotate(f"χ={chi}" if chi else e.label, (xv, yv), xytext=(0, 7),
-                              textcoords="offset points", ha="center", fontsize=7.5,
-                              color=INK)
+            marks.append((members, x, y))
             limits.append({"series": name, **limit, "value": value, "slope": slope,
                            "units": entropy_unit(base)})
         ax.set_xlim(left=0.0)
@@ -135,17 +134,52 @@ def convergence_figure(sources, *, against="weight", title=None, options=None,
         ax.set_ylabel(f"S(N/2) [{entropy_unit(base)}]")
         ax.legend(loc="best")
         zoom.set_xscale("log")
+        _log_ticks(zoom, np.concatenate([m[1] for m in marks]), against)
+        zoom.margins(y=0.12)
+        _run_labels(zoom, marks)
         zoom.set_xlabel(xlabel + " (log scale)")
         zoom.set_title("the approach to the limit", fontweight="normal", fontsize=9)
         fig.bondscope_limits = limits
         return titled(fig, ax, title, "Convergence of the middle-cut entropy")
 
 
+def _log_ticks(ax, x, against):
+    """Decade ticks when the runs span two decades or more, else a tick at each run
+    (1/chi written as a fraction): never the crowded labels of minor log ticks."""
+    from matplotlib.ticker import LogLocator, NullFormatter
+
+    x = x[x > 0]
+    ax.xaxis.set_minor_formatter(NullFormatter())
+    if x.size == 0:
+        return
+    if np.log10(x.max() / x.min()) >= 2:
+        ax.xaxis.set_major_locator(LogLocator(base=10, numticks=6))
+        return
+    ticks = np.unique(x)
+    ax.set_xticks(ticks, [f"1/{round(1 / t):d}" if against == "bond" else f"{t:.2g}"
+                          for t in ticks])
+    ax.set_xticks([], minor=True)
+
+
+def _run_labels(ax, marks):
+    """χ (or the name) beside each run: above it, or below it in the top fifth of the
+    panel, so no label leaves the axes."""
+    low, high = ax.get_ylim()
+    for members, x, y in marks:
+        for (e, _), xv, yv in zip(members, x, y):
+            above = (yv - low) < 0.8 * (high - low)
+            ax.annotate(f"χ={e.max_bond}" if e.max_bond else e.text, (xv, yv),
+                        xytext=(0, 7 if above else -7), textcoords="offset points",
+                        ha="center", va="bottom" if above else "top", fontsize=7.5,
+                        color=INK)
+
+
 def _middle(entry):
     prof = entry.profile
     at = np.flatnonzero(prof.positions == prof.sites // 2)
     if at.size == 0:
-        raise ValueError(f"{entry.label}: no cut at the middle position {prof.sites // 2}")
+        raise ValueError(f"{visible(entry.label)}: no cut at the middle position "
+                         f"{prof.sites // 2}")
     return float(prof.entropies[at[0]])
 
 

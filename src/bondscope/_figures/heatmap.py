@@ -25,7 +25,8 @@ def heatmap_figure(sources, *, title=None, options=None, **profiling):
 
     Rows are ordered by each source's ``time`` (a top-level profile field, a
     summary column or a checkpoint attribute); when some source has no time
-    the rows are the sources in natural name order, numbered 0, 1, ...
+    the rows are the sources in natural name order, labelled by name, and
+    the figure is titled "per checkpoint" rather than "in time".
 
     Parameters
     ----------
@@ -46,7 +47,7 @@ def heatmap_figure(sources, *, title=None, options=None, **profiling):
     if len(sites) > 1:
         raise ValueError(f"a heatmap needs chains of one length; found {sorted(sites)} sites "
                          f"across {len(entries)} sources")
-    timed = all(isinstance(e.meta.get("time"), (int, float)) for e in entries)
+    timed = all("time" in e.meta for e in entries)
     if timed:
         entries.sort(key=lambda e: float(e.meta["time"]))
         times = np.array([float(e.meta["time"]) for e in entries])
@@ -64,15 +65,17 @@ def heatmap_figure(sources, *, title=None, options=None, **profiling):
         mesh = ax.pcolormesh(_edges(entries[0].profile.positions), _edges(times), grid,
                              cmap=COLOUR_MAP, shading="flat", vmin=0.0)
         bar = fig.colorbar(mesh, ax=ax, pad=0.02)
-        bar.set_label(f"S(l, t) [{entropy_unit(base)}]")
+        bar.set_label(f"{'S(l, t)' if timed else 'S(l)'} [{entropy_unit(base)}]")
         cut_label(ax)
         unit = entries[0].meta.get("time_unit")
         if timed:
             ax.set_ylabel(f"time t [{unit}]" if unit else "time t")
         else:
             ax.set_ylabel("checkpoint (name order)")
-            ax.set_yticks(times, [e.label for e in entries], fontsize=7.5)
-        return titled(fig, ax, title, "Entanglement entropy in time")
+            ax.set_yticks(times, [e.text for e in entries], fontsize=7.5)
+        in_time = timed and len(entries) > 1
+        return titled(fig, ax, title, "Entanglement entropy in time" if in_time
+                      else "Entanglement entropy per checkpoint")
 
 
 # the figure this kind draws (bondscope._figures._kinds)
