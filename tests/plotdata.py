@@ -6,9 +6,11 @@ from pathlib import Path
 import h5py
 import numpy as np
 
+from bondscope._text import natural_key
 from builders import random_chain, write_chain
 
-__all__ = ["ROOT", "series_checkpoints", "time_checkpoints", "batch_dir", "PNG_MAGIC"]
+__all__ = ["ROOT", "series_checkpoints", "time_checkpoints", "batch_dir", "PNG_MAGIC",
+           "spin_one_heisenberg", "spin_one_checkpoint", "normalised"]
 
 ROOT = Path(__file__).resolve().parent.parent
 PNG_MAGIC = b"\x89PNG\r\n\x1a\n"
@@ -16,7 +18,8 @@ PNG_MAGIC = b"\x89PNG\r\n\x1a\n"
 _FALLBACK = ((2, 3e-3), (4, 4e-4), (8, 5e-5))
 
 
-def _normalised(tensors):
+def normalised(tensors):
+    """Site tensors scaled so that their state has norm 1."""
     from reference.states import to_vector
 
     tensors = [t.copy() for t in tensors]
@@ -24,19 +27,20 @@ def _normalised(tensors):
     return tensors
 
 
-def series_checkpoints(dest):
-    """A bond-dimension series: data/series/*.h5 when present, else small random chains."""
+def series_checkpoints(dest, small=False):
+    """A bond-dimension series, smallest bond dimension first: data/series/*.h5 when
+    present (and not ``small``), else random 10-site chains."""
     dest = Path(dest)
     dest.mkdir(parents=True, exist_ok=True)
-    shipped = sorted((ROOT / "data" / "series").glob("*.h5"))
-    if shipped:
+    shipped = sorted((ROOT / "data" / "series").glob("*.h5"), key=lambda p: natural_key(p.name))
+    if shipped and not small:
         return [Path(shutil.copy(p, dest / p.name)) for p in shipped]
     rng = np.random.default_rng(70)
     out = []
     for chi, weight in _FALLBACK:
         path = dest / f"chain_chi{chi}.h5"
         bonds = [min(2**k, chi, 2 ** (10 - k)) for k in range(1, 10)]
-        write_chain(path, _normalised(random_chain(rng, [2] * 10, bonds)), pattern="/s/T{site}")
+        write_chain(path, normalised(random_chain(rng, [2] * 10, bonds)), pattern="/s/T{site}")
         with h5py.File(path, "a") as f:
             f.attrs.update(bond_dim=chi, max_discarded_weight=weight, boundary="open")
         out.append(path)
@@ -52,7 +56,7 @@ def time_checkpoints(dest, times=(0.0, 0.5, 1.0, 1.5)):
     for k, t in enumerate(times):
         path = dest / f"snap_{len(times) - k:02d}.h5"
         chain = random_chain(rng, [2] * 8, [2, 4, 8, 16, 8, 4, 2])
-        write_chain(path, _normalised(chain), pattern="/psi/T{site}")
+        write_chain(path, normalised(chain), pattern="/psi/T{site}")
         with h5py.File(path, "a") as f:
             f.attrs.update(time=t, time_unit="1/J")
         out.append(path)
@@ -98,3 +102,12 @@ def spin_one_heisenberg(L=8):
         H = H + at(sz, i) @ at(sz, i + 1) + 0.5 * (at(sp_, i) @ at(sp_.T, i + 1)
                                                   + at(sp_.T, i) @ at(sp_, i + 1))
     return ground_state(H.tocsr())[1]
+
+
+def spin_one_checkpoint(dest, L=8):
+    """:func:`spin_one_heisenberg` written as exact site tensors (local dimension 3)."""
+    from reference.states import from_vector
+
+    path = Path(dest) / "spin1_heisenberg.h5"
+    write_chain(path, from_vector(spin_one_heisenberg(L), [3] * L), pattern="/psi/T{site}")
+    return path

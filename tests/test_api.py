@@ -58,6 +58,21 @@ UNKNOWN_OPTIONS = [
      "parity_exponent"),
     ("fit_scaling", lambda: bondscope.fit_scaling(bondscope.profile(_bell()), windw="1:1"),
      "windw"),
+    # every figure function, and the fit settings of the entropy figure and the report
+    ("entropy_figure fit={}", lambda: bondscope.entropy_figure(bondscope.profile(_bell()),
+                                                             fit={"windw": "1:1"}), "windw"),
+    ("spectrum_figure", lambda: bondscope.spectrum_figure(bondscope.profile(_bell()),
+                                                          max_levle=3), "max_levle"),
+    ("budget_figure", lambda: bondscope.budget_figure(bondscope.profile(_bell()), target=1e-4),
+     "target"),
+    ("heatmap_figure", lambda: bondscope.heatmap_figure(bondscope.profile(_bell()), bananas=3),
+     "bananas"),
+    ("convergence_figure", lambda: bondscope.convergence_figure(bondscope.profile(_bell()),
+                                                                againts="bond"), "againts"),
+    ("plot", lambda: bondscope.plot(bondscope.profile(_bell()), "entropy", bananas=3),
+     "bananas"),
+    ("write_report fit={}", lambda: bondscope.write_report("results", "r.html",
+                                                           fit={"windw": "1:1"}), "windw"),
 ]
 
 
