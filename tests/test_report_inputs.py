@@ -395,3 +395,23 @@ def test_figures_of_the_report_are_deterministic(sharded, sharded_text):
     first, again = (re.sub(r"on \d{4}-\d\d-\d\d \d\d:\d\d UTC", "", text)
                     for text in (sharded_text, report_html(sharded[0])))
     assert first == again and "data:image/png;base64" in first
+
+
+@pytest.mark.parametrize("flags, status, shown", [
+    (["--window", "2:8", "--corrections", "parity"], 0,
+     "scaling fit with window 2:8, corrections parity"),          # the user's fit, in the page
+    (["--no-fit"], 0, None),                                        # no c or law columns
+    (["--no-fit", "--window", "2:8"], 2, None),                     # contradictory: usage error
+])
+def test_cli_report_fit_flags(flags, status, shown, sharded, tmp_path, capsys):
+    page = tmp_path / "r.html"
+    assert main(["report", str(sharded[0]), "-o", str(page), *flags]) == status
+    if status:
+        assert "--no-fit with fit settings" in capsys.readouterr().err and not page.exists()
+        return
+    text = page.read_text(encoding="utf-8")
+    heads = _columns(text)
+    if shown is None:
+        assert "c" not in heads and "law" not in heads
+    else:
+        assert shown in text and {"c", "law"} <= set(heads)

@@ -24,7 +24,7 @@ from datetime import datetime, timezone
 from pathlib import Path
 
 from ._errors import CheckpointError, one_line
-from ._figures._gather import entries_of_rows, input_files, read_results
+from ._figures._gather import checked_meta, entries_of_rows, input_files, read_results
 from ._figures._names import shortened, visible
 
 __all__ = ["write_report", "report_html"]
@@ -191,6 +191,9 @@ def _table(rows, names, fits, notes):
                 cells.append(_fit_cells(fits.get(r["source"])))
             elif key == "notes":
                 cells.append(_cell(key, len(notes.get(r["source"], [])) or None, None))
+            elif key in ("time", "bond_dim") and r.get(key) is not None \
+                    and key not in checked_meta({key: r[key]}, "")[0]:
+                cells.append('<td data-v="" title="ignored (see Notes)"></td>')
             elif key != "law":
                 cells.append(_cell(key, r.get(key), fmt, names.get(r["source"])))
         body.append(f"<tr{css}>{''.join(cells)}</tr>")
@@ -311,10 +314,12 @@ def _row_notes(entry, fit):
 
 
 def _fit_text(settings):
+    """The end of the table's lede: where c and the law come from."""
     if settings is None:
-        return "no scaling fit (entropy curves only)"
-    given = ", ".join(f"{k} {v}" for k, v in settings.items())
-    return f"scaling fit with {given}" if given else "scaling fit with default settings"
+        return ""
+    given = ", ".join(f"{k} {','.join(map(str, v)) or 'none'}" if isinstance(v, (list, tuple))
+                      else f"{k} {v}" for k, v in settings.items())
+    return f"; c and the law come from the scaling fit with {given or 'default settings'}"
 
 
 def report_html(results_dir, *, boundary=None, title=None, fit=True):
@@ -401,8 +406,7 @@ def report_html(results_dir, *, boundary=None, title=None, fit=True):
 <main>
 <h2 id="summary">Summary</h2>
 <p class="lede">One row per checkpoint; click a heading to sort, hover over it for its
-meaning. Entropies are in the profiles' own units; c and the law come from the
-{_esc(_fit_text(settings))}.</p>
+meaning. Entropies are in the profiles' own units{_esc(_fit_text(settings))}.</p>
 {_table(rows, names, fits, notes)}
 <h2 id="failures">Failures ({counts["failed"]})</h2>
 {_failures(rows, names)}

@@ -58,6 +58,16 @@ def add_arguments(p):
     add_flags(p, *FIT_FLAGS, *LAYOUT_FLAGS, "renyi", "base", "quiet")
 
 
+def fit_choice(args):
+    """The ``fit`` of the entropy figure and the report: False for --no-fit, the fit
+    settings given, or True (the default fit)."""
+    settings = fit_options(args)
+    if args.no_fit and settings:
+        raise UsageError("--no-fit with fit settings (" + ", ".join(
+            "--" + k.replace("_", "-") for k in settings) + "): choose one")
+    return False if args.no_fit else (settings or True)
+
+
 def figure_options(args, draw):
     """The keywords of figure function ``draw`` that the command line sets."""
     import inspect
@@ -67,12 +77,9 @@ def figure_options(args, draw):
     given = {dest: getattr(args, dest) for dest in FIGURE_FLAGS if getattr(args, dest) is not None}
     if args.renyi and "renyi" in takes:
         given["renyi"] = args.renyi
-    settings = fit_options(args)
-    if args.no_fit or settings:
-        given["fit"] = False if args.no_fit else settings
-    if args.no_fit and settings:
-        raise UsageError("--no-fit with fit settings (" + ", ".join(
-            "--" + k.replace("_", "-") for k in settings) + "): choose one")
+    fit = fit_choice(args)
+    if fit is not True:
+        given["fit"] = fit
     for dest, value in given.items():
         if dest not in takes:
             flag = "--no-fit or fit settings" if dest == "fit" else FIGURE_FLAGS[dest][0][0]

@@ -1,6 +1,6 @@
 """`bondscope report`: one self-contained HTML page for a batch results directory."""
 
-from ._common import FIT_FLAGS, add_flags, fit_options
+from ._common import FIT_FLAGS, add_flags
 
 HELP = "write a self-contained HTML report (table, failures, figures) of a batch results dir"
 ORDER = 41
@@ -12,7 +12,7 @@ def add_arguments(p):
                    help="the HTML file to write (default: %(default)s)")
     p.add_argument("--title", help="page heading (default: the directory's name)")
     p.add_argument("--no-fit", action="store_true",
-                   help="entropy figures without the central-charge fit")
+                   help="no central-charge fit (in the table or the entropy figures)")
     add_flags(p, *FIT_FLAGS)
 
 
@@ -20,9 +20,9 @@ def run(args):
     from .._figures._names import visible
     from .._report import write_report
     from ._warnings import quiet_warnings
+    from .plot import fit_choice
 
     with quiet_warnings():
-        path = write_report(args.results, args.output, title=args.title,
-                            fit=False if args.no_fit else (fit_options(args) or True))
+        path = write_report(args.results, args.output, title=args.title, fit=fit_choice(args))
     print(f"report written to {visible(path)}")
     return 0
