@@ -241,7 +241,7 @@ def _figure_html(kind, entries, caption, alt, **options):
             warnings.simplefilter("ignore")  # the page lists its checkpoints' notes itself
             fig = figure_function(kind)(entries, **options)
         data = _png(fig)
-    except Exception as exc:  # noqa: BLE001 - one figure must not abort the page
+    except Exception as exc:  # one figure must not abort the page
         known = isinstance(exc, (CheckpointError, ValueError, KeyError, OSError))
         reason = one_line(exc) if known else f"{type(exc).__name__}: {one_line(exc)}"
         return f'<p class="note">{_esc(caption)}: not drawn ({_esc(reason)}).</p>'
