@@ -10,6 +10,7 @@ from .._docs import filled
 from .._options import ProfileOptions
 from .._text import entropy_unit
 from ._gather import collect, same_base
+from ._names import visible
 from ._style import (FAINT, RENYI_DASHES, curve_look, cut_label, marker_size, new_figure,
                      plus_minus, style, titled)
 
@@ -133,7 +134,7 @@ def entropy_figure(sources, *, boundary=None, renyi=(), fit=True, against="cut",
         missing = [a for a in orders if _order_key(a, entry.profile) is None]
         if missing:
             raise CheckpointError(
-                f"{entry.origin or entry.label}: no Rényi entropy of order "
+                f"{visible(entry.origin or entry.label)}: no Rényi entropy of order "
                 f"{', '.join(missing)} in this profile (present: "
                 f"{', '.join(entry.profile.renyi_orders) or 'none'}); rerun `bondscope profile "
                 f"CHECKPOINT --renyi {','.join(orders)} -o PROFILE`")
