@@ -1,0 +1,264 @@
+"""Block-wise sweeps: the QR/LQ sweeps of an MPS run sector by sector.
+
+When every bond index carries a known charge and each site tensor is non-zero
+only where q_right = q_left + q_phys, the tensor is a set of blocks keyed by
+(q_left, q_phys), the bond matrices of both sweeps are block diagonal in the
+charge, and each cut's Schmidt values are the union over sectors q of the
+singular values of R_q L_q, already grouped by the left block's charge.
+
+A site's blocks are given as a dict ``{(q_left, q_phys): (q_right, array)}``
+with charge keys (tuples of ints) and arrays shaped
+(chi_left(q_left), d(q_phys), chi_right(q_right)); the phys leg of a block
+runs over the local basis states of charge q_phys in basis order.
+
+Dense tensors are split into such blocks when their non-zero pattern allows
+it: the charges of the bond indices are inferred from the pattern while the
+right-to-left sweep reads the tensors (:func:`infer_left_charges`).
+"""
+
+import numpy as np
+
+from .spill import r_factor
+
+__all__ = ["NotBlockStructured", "infer_left_charges", "split_blocks", "block_chain",
+           "dense_blocks", "charge_groups"]
+
+
+class NotBlockStructured(Exception):
+    """A dense tensor's non-zero pattern admits no charges on its left bond."""
+
+
+def infer_left_charges(a, right, known, phys, charges):
+    """Charges of the left bond indices implied by the non-zeros of one tensor.
+
+    Parameters
+    ----------
+    a : ndarray, shape (k, d, c)
+        Site tensor (left, phys, right).
+    right : ndarray, shape (c, n_q)
+        Charges of the right bond indices.
+    known : ndarray of bool, shape (c,)
+        Right indices whose charge is known; the others carry no weight (the
+        next tensor is zero on them) and are ignored.
+    phys : ndarray, shape (d, n_q)
+        Local charges.
+    charges : ChainCharges
+        Charge arithmetic (moduli).
+
+    Returns
+    -------
+    left : ndarray, shape (k, n_q)
+        q_left = q_right - q_phys of every non-zero entry.
+    known : ndarray of bool, shape (k,)
+        False for left indices with no non-zero entry on a known right index.
+
+    Raises
+    ------
+    NotBlockStructured
+        Two non-zero entries of one left index imply different charges.
+
+    Notes
+    -----
+    Exact zeros count: an entry is in the pattern when it is not exactly 0.
+    Cost O(k d c) per quantity, memory a few (k, d, c) integer temporaries.
+    """
+    nz = (a != 0) & known[None, None, :]
+    has = nz.any(axis=(1, 2))
+    implied = charges.sub(right[None, :, :], phys[:, None, :])        # (d, c, n_q)
+    out = np.zeros((a.shape[0], right.shape[1]), dtype=np.int64)
+    big = np.iinfo(np.int64).max
+    for j in range(right.shape[1]):
+        vals = np.broadcast_to(implied[None, :, :, j], nz.shape)
+        lo = np.where(nz, vals, big).min(axis=(1, 2))
+        hi = np.where(nz, vals, -big).max(axis=(1, 2))
+        if np.any(has & (lo != hi)):
+            raise NotBlockStructured
+        out[:, j] = np.where(has, lo, 0)
+    return out, has
+
+
+def _groups(labels, keep=None):
+    """{key: index array} of the rows of an (n, n_q) charge array (those in ``keep``)."""
+    index = np.arange(labels.shape[0]) if keep is None else np.flatnonzero(keep)
+    return {k: index[rows] for k, rows in charge_groups(labels[index]).items()}
+
+
+def charge_groups(labels):
+    """{key: row indices} of an (n, n_q) charge array, keys (tuples) in sorted order."""
+    keys, inverse = np.unique(labels, axis=0, return_inverse=True)
+    inverse = inverse.reshape(-1)
+    order = np.argsort(inverse, kind="stable")
+    bounds = np.cumsum(np.bincount(inverse, minlength=len(keys)))
+    return {tuple(int(v) for v in k): order[b - n:b]
+            for k, b, n in zip(keys, bounds, np.diff(bounds, prepend=0))}
+
+
+def split_blocks(a, left, phys, right, charges, keep_left=None, keep_right=None):
+    """The blocks of a dense tensor whose non-zeros obey q_right = q_left + q_phys.
+
+    Parameters
+    ----------
+    a : ndarray, shape (k, d, c)
+    left, phys, right : ndarray, shapes (k, n_q), (d, n_q), (c, n_q)
+        Charges of the indices of each leg.
+    charges : ChainCharges
+    keep_left, keep_right : ndarray of bool, optional
+        Bond indices to keep (default all); the others carry no weight.
+
+    Returns
+    -------
+    dict
+        ``{(q_left, q_phys): (q_right, block)}``, blocks as C-contiguous copies.
+    """
+    rows, cols = _groups(left, keep_left), _groups(right, keep_right)
+    out = {}
+    for qp, states in _groups(phys).items():
+        for ql, r in rows.items():
+            qr = charges.key(charges.add(ql, qp))
+            c = cols.get(qr)
+            if c is None:
+                continue
+            out[(ql, qp)] = (qr, np.ascontiguousarray(a[np.ix_(r, states, c)]))
+    return out
+
+
+def dense_blocks(src, charges):
+    """Per-site block readers for a dense chain, with bond charges inferred on the way.
+
+    Returns ``(blocks_right_to_left, blocks_left_to_right, bond_charges)``:
+    the first yields (i, blocks) for i = N-1..0 and raises NotBlockStructured
+    as soon as a tensor's pattern admits no charges; the second yields (i,
+    blocks) for i = 0..N-1 from the charges found by the first; the third is
+    the list of bond charge arrays (filled by the first).  Bond charges are
+    relative to the right end's charge 0.
+    """
+    n = src.sites
+    bonds, known = [None] * (n + 1), [None] * (n + 1)
+    bonds[n] = np.zeros((1, charges.quantities), dtype=np.int64)
+    known[n] = np.ones(1, dtype=bool)
+
+    def blocks(i, a):
+        return split_blocks(a, bonds[i], charges.sites[i], bonds[i + 1], charges,
+                            known[i], known[i + 1])
+
+    def leftward():
+        for i in range(n - 1, -1, -1):
+            a = src.tensor(i)
+            bonds[i], known[i] = infer_left_charges(a, bonds[i + 1], known[i + 1],
+                                                    charges.sites[i], charges)
+            yield i, blocks(i, a)
+
+    def rightward():
+        for i in range(n):
+            yield i, blocks(i, src.tensor(i))
+    return leftward(), rightward(), bonds
+
+
+def _lq_blocks(blocks, env):
+    """Block-diagonal bond matrix of the right-to-left sweep: per q_left, L of A L_{i+1}."""
+    pieces = {}
+    for (ql, _), (qr, blk) in blocks.items():
+        e = env.get(qr)
+        if e is None:
+            continue
+        k, d, c = blk.shape
+        pieces.setdefault(ql, []).append((blk.reshape(k * d, c) @ e).reshape(k, -1))
+    out = {}
+    for ql, ps in pieces.items():
+        m = np.empty((sum(p.shape[1] for p in ps), ps[0].shape[0]), dtype=ps[0].dtype,
+                     order="F")
+        at = 0
+        for p in ps:                                    # rows of m = columns of A L
+            m[at:at + p.shape[1]] = p.T
+            at += p.shape[1]
+        out[ql] = r_factor(m).T
+    return out
+
+
+def _qr_blocks(r, blocks):
+    """Block-diagonal bond matrix of the left-to-right sweep: per q_right, R of R_i A_i."""
+    pieces = {}
+    for (ql, _), (qr, blk) in blocks.items():
+        rq = r.get(ql)
+        if rq is None:
+            continue
+        k, d, c = blk.shape
+        pieces.setdefault(qr, []).append((rq @ blk.reshape(k, d * c)).reshape(-1, c))
+    out = {}
+    for qr, ps in pieces.items():
+        m = np.empty((sum(p.shape[0] for p in ps), ps[0].shape[1]), dtype=ps[0].dtype,
+                     order="F")
+        at = 0
+        for p in ps:
+            m[at:at + p.shape[0]] = p
+            at += p.shape[0]
+        out[qr] = r_factor(m)
+    return out
+
+
+def block_chain(leftward, rightward, first, last, n, store, tick, dtype):
+    """Charge-resolved Schmidt values of every cut from block-wise sweeps.
+
+    Parameters
+    ----------
+    leftward, rightward : iterables of (i, blocks)
+        Site blocks for i = N-1..0 and for i = 0..N-1 (each read when reached).
+    first, last : callable
+        ``first()`` / ``last()``: the charge key of the left end's / right
+        end's single bond index (called after the right-to-left sweep).
+    n : int
+        Number of sites.
+    store : SpillStore
+        Holds the right-to-left sweep's bond blocks until the other sweep needs them.
+    tick : callable
+        Called once per site tensor processed.
+    dtype : numpy dtype
+        Compute dtype.
+
+    Returns
+    -------
+    cuts : list of list of (key, ndarray)
+        Per cut (position 1..N-1), the raw singular values of each sector,
+        keyed by the bond charge (not yet relative to the left end).
+    first_key, last_key : tuple
+
+    Notes
+    -----
+    Per site and sweep, one product with a bond block and one QR per sector:
+    cost sum_q (rows_q chi_q^2) instead of d chi^3, and memory for one
+    sector's matrices at a time besides the site's blocks.  The bond blocks
+    of the right-to-left sweep go to ``store`` (which spills past its budget),
+    so the peak does not grow with N.
+
+    References
+    ----------
+    I. P. McCulloch and M. Gulácsi, Europhys. Lett. 57, 852 (2002);
+    S. Singh, R. N. C. Pfeifer and G. Vidal, Phys. Rev. B 83, 115125 (2011)
+    -- block-sparse tensors of symmetric tensor networks.
+    """
+    from scipy.linalg import svdvals
+
+    env, env_keys = None, [None] * (n + 1)
+    for i, blocks in leftward:
+        if env is None:
+            env = {last(): np.ones((1, 1), dtype=dtype)}
+        env = _lq_blocks(blocks, env)
+        if i > 0:
+            env_keys[i] = list(env)
+            for j, q in enumerate(env_keys[i]):
+                store.put(f"L{i}:{j}", env[q])
+        tick()
+    r = {first(): np.ones((1, 1), dtype=dtype)}
+    cuts = []
+    for i, blocks in rightward:
+        r = _qr_blocks(r, blocks)
+        tick()
+        if i == n - 1:
+            break
+        cut = []
+        for j, q in enumerate(env_keys[i + 1]):
+            e = store.pop(f"L{i + 1}:{j}")
+            if q in r:
+                cut.append((q, svdvals(r[q] @ e, overwrite_a=True, check_finite=False)))
+        cuts.append(sorted(cut))
+    return cuts, first(), last()
