@@ -172,6 +172,25 @@ class ChargeSpec:
             parts.append(("*" if count is None else f"{count}*") + lists)
         return "/".join(parts)
 
+    def expand(self, sites, where="charges"):
+        """The charge table (d, n_quantities) of each of ``sites`` sites, in chain order.
+
+        Raises
+        ------
+        ValueError
+            The site groups cover a different number of sites.
+        """
+        fixed = sum(c for c, _ in self.groups if c is not None)
+        rest = sites - fixed
+        if rest < 0 or (rest and not any(c is None for c, _ in self.groups)):
+            raise ValueError(f"{where}: the site groups of {self.text()!r} cover {fixed} "
+                             f"sites, the state has {sites}; adjust the counts or add a '*' "
+                             "group for the remaining sites")
+        tables = []
+        for count, table in self.groups:
+            tables += [table] * (rest if count is None else count)
+        return tables
+
     def bind(self, local_dims, labels=None, where="charges"):
         """Charges of each site of a chain with these local dimensions.
 
@@ -192,18 +211,8 @@ class ChargeSpec:
             The groups cover a different number of sites, or a site's charge list
             has a length other than its local dimension.
         """
-        n = len(local_dims)
-        labels = list(range(n)) if labels is None else list(labels)
-        fixed = sum(c for c, _ in self.groups if c is not None)
-        rest = n - fixed
-        has_rest = any(c is None for c, _ in self.groups)
-        if rest < 0 or (rest and not has_rest):
-            raise ValueError(f"{where}: the site groups of {self.text()!r} cover {fixed} "
-                             f"sites, the state has {n}; adjust the counts or add a '*' "
-                             "group for the remaining sites")
-        tables = []
-        for count, table in self.groups:
-            tables += [table] * (rest if count is None else count)
+        labels = list(range(len(local_dims))) if labels is None else list(labels)
+        tables = self.expand(len(local_dims), where)
         for i, (d, table) in enumerate(zip(local_dims, tables)):
             if table.shape[0] != d:
                 lists = ";".join(",".join(str(int(v)) for v in col) for col in table.T)
