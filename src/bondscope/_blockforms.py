@@ -117,6 +117,10 @@ def read_site(f, path, gpath, label, form):
                                   f"names {len(names)} blocks; expected (n_blocks, 3) or "
                                   "(n_blocks, 3, n_q) with attribute blocks naming each row")
         rows = {n: charges[k].reshape(3, -1) for k, n in enumerate(names)}
+        stray = sorted(n for n in rows if not isinstance(g.get(n), h5py.Dataset))
+        if stray:
+            raise CheckpointError(f"{where}: block_charges names block {stray[0]}, which "
+                                  f"is not a dataset in {gpath}")
     blocks = []
     for name in sorted(g):
         d = g[name]
@@ -137,9 +141,6 @@ def read_site(f, path, gpath, label, form):
                                   "attributes charge_left, charge_phys, charge_right nor a "
                                   "row of a block_charges table")
         blocks.append((name, d, d.shape, q))
-    if rows:
-        raise CheckpointError(f"{where}: block_charges names block {sorted(rows)[0]}, which "
-                              f"is not a dataset in {gpath}")
     if not blocks:
         raise CheckpointError(f"{where}: {gpath} holds no blocks")
     return Site(label, form, blocks=blocks, local=local)

@@ -338,11 +338,12 @@ def _build(f, path, pattern, form, charges, modulus, axes, flow, precision):
     if problem:
         raise CheckpointError(f"{path}: {problem} (site groups)")
     if form is None:
-        forms = {form_of(f[p]) for p in hits.values()}
-        if len(forms) != 1 or None in forms:
-            raise CheckpointError(f"{path}: the groups of {pattern} do not share one block "
-                                  f"form; name it with --block-form ({', '.join(FORMS)})")
-        form = forms.pop()
+        forms = [form_of(f[p]) for p in hits.values()]
+        known = [k for k in FORMS if k in forms]
+        if not known:
+            raise CheckpointError(f"{path}: the groups of {pattern} hold no block form; "
+                                  f"name it with --block-form ({', '.join(FORMS)})")
+        form = max(known, key=forms.count)     # a group that differs gets its own error
     sites = [read_site(f, path, p, label, form) for label, p in hits.items()]
     bound = _local_table(sites, charges, modulus, str(path))
     if form == "labelled":

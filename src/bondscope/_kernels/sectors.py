@@ -262,7 +262,8 @@ def chain_sectors(src, charges, *, scratch=None, leak_tol=None, tick=None):
                         "the local charges (--charges), or profile without them") from None
                 route, leak = "charge-sweep", outside + worst
     if route == "block-sweep":
-        raw = [[(charges.key(charges.sub(q, first)), v) for q, v in cut] for cut in raw]
+        raw = [sorted((charges.key(charges.sub(q, first)), v) for q, v in cut)
+               for cut in raw]
         total = charges.key(charges.sub(last, first))
     cuts, norm = _normalised_cuts(raw, src.name)
     result = SectorResult(cuts, [], total, leak, norm, route)
