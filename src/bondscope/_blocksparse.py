@@ -115,8 +115,9 @@ def _layout(sites, charges, words, flow, where):
                         f"{charges.quantities} (one per conserved quantity)"), None, None
             ql, qp, qr = keys
             if charges.key(charges.add(ql, qp)) != qr:
-                return (f"{at}: block {name} has charges left {charges.text(keys[0])}, phys "
-                        f"{charges.text(qp)}, right {charges.text(qr)} (canonical), which "
+                shown = [charges.text(charges.key(row)) for row in q]
+                return (f"{at}: block {name} has charges left {shown[0]}, phys {shown[1]}, "
+                        f"right {shown[2]}, which "
                         f"break {_rule(flow)}; if the file uses the other leg direction, "
                         f"pass --charge-flow "
                         f"{'leftward' if flow == 'rightward' else 'rightward'}"), None, None
@@ -134,7 +135,7 @@ def _layout(sites, charges, words, flow, where):
             if counts.get(qp, 0) != dims[1]:
                 return (f"{at}: block {name} has a phys leg of {dims[1]} states for charge "
                         f"{charges.text(qp)}, the local basis has {counts.get(qp, 0)} such "
-                        f"states (axes {','.join(words)})"), None, None
+                        f"state(s) (axes {','.join(words)})"), None, None
             for b, q, dim, side in ((i, ql, dims[0], "left"), (i + 1, qr, dims[2], "right")):
                 have = bonds[b].setdefault(q, dim)
                 if have != dim:

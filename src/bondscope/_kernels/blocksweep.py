@@ -16,6 +16,10 @@ it: the charges of the bond indices are inferred from the pattern while the
 right-to-left sweep reads the tensors (:func:`infer_left_charges`).
 """
 
+import os
+from concurrent.futures import ThreadPoolExecutor
+from contextlib import contextmanager
+
 import numpy as np
 
 from .spill import r_factor
@@ -154,46 +158,67 @@ def dense_blocks(src, charges):
     return leftward(), rightward(), bonds
 
 
-def _lq_blocks(blocks, env):
-    """Block-diagonal bond matrix of the right-to-left sweep: per q_left, L of A L_{i+1}."""
-    pieces = {}
-    for (ql, _), (qr, blk) in blocks.items():
-        e = env.get(qr)
-        if e is None:
-            continue
-        k, d, c = blk.shape
-        pieces.setdefault(ql, []).append((blk.reshape(k * d, c) @ e).reshape(k, -1))
-    out = {}
-    for ql, ps in pieces.items():
-        m = np.empty((sum(p.shape[1] for p in ps), ps[0].shape[0]), dtype=ps[0].dtype,
-                     order="F")
-        at = 0
-        for p in ps:                                    # rows of m = columns of A L
-            m[at:at + p.shape[1]] = p.T
-            at += p.shape[1]
-        out[ql] = r_factor(m).T
-    return out
+def _lq_sector(pairs):
+    """L factor of one left sector: [A_(ql,qp) L_qr for each block] side by side = L Q."""
+    width = sum(e.shape[1] * blk.shape[1] for blk, e in pairs)
+    k = pairs[0][0].shape[0]
+    m = np.empty((width, k), dtype=np.result_type(pairs[0][0], pairs[0][1]), order="F")
+    at = 0
+    for blk, e in pairs:                                # rows of m = columns of A L
+        part = (blk.reshape(-1, blk.shape[2]) @ e).reshape(k, -1)
+        m[at:at + part.shape[1]] = part.T
+        at += part.shape[1]
+    return r_factor(m).T
 
 
-def _qr_blocks(r, blocks):
-    """Block-diagonal bond matrix of the left-to-right sweep: per q_right, R of R_i A_i."""
-    pieces = {}
+def _qr_sector(pairs):
+    """R factor of one right sector: [R_ql A_(ql,qp) for each block] stacked = P R."""
+    c = pairs[0][1].shape[2]
+    height = sum(rq.shape[0] * blk.shape[1] for rq, blk in pairs)
+    m = np.empty((height, c), dtype=np.result_type(pairs[0][0], pairs[0][1]), order="F")
+    at = 0
+    for rq, blk in pairs:
+        part = (rq @ blk.reshape(blk.shape[0], -1)).reshape(-1, c)
+        m[at:at + part.shape[0]] = part
+        at += part.shape[0]
+    return r_factor(m)
+
+
+def _cut_values(pair):
+    from scipy.linalg import svdvals
+
+    return svdvals(pair[0] @ pair[1], overwrite_a=True, check_finite=False)
+
+
+def _by_sector(blocks, bond, left):
+    """Blocks paired with the bond matrix they meet, grouped by the sector they produce."""
+    groups = {}
     for (ql, _), (qr, blk) in blocks.items():
-        rq = r.get(ql)
-        if rq is None:
-            continue
-        k, d, c = blk.shape
-        pieces.setdefault(qr, []).append((rq @ blk.reshape(k, d * c)).reshape(-1, c))
-    out = {}
-    for qr, ps in pieces.items():
-        m = np.empty((sum(p.shape[0] for p in ps), ps[0].shape[1]), dtype=ps[0].dtype,
-                     order="F")
-        at = 0
-        for p in ps:
-            m[at:at + p.shape[0]] = p
-            at += p.shape[0]
-        out[qr] = r_factor(m)
-    return out
+        m = bond.get(qr if left else ql)
+        if m is not None:
+            groups.setdefault(ql if left else qr, []).append((blk, m) if left else (m, blk))
+    return groups
+
+
+def _run(pool, task, groups):
+    keys = list(groups)
+    return dict(zip(keys, pool(task, [groups[k] for k in keys])))
+
+
+@contextmanager
+def _sector_pool():
+    """A map over sectors: one BLAS thread per sector, as many sectors at once as the BLAS
+    had threads (small factorisations gain nothing from threads inside one call)."""
+    from threadpoolctl import threadpool_info, threadpool_limits
+
+    counts = [lib["num_threads"] for lib in threadpool_info() if lib["user_api"] == "blas"]
+    workers = max(counts) if counts else (os.cpu_count() or 1)
+    with threadpool_limits(limits=1, user_api="blas"):
+        if workers < 2:
+            yield lambda f, items: list(map(f, items))
+            return
+        with ThreadPoolExecutor(workers, thread_name_prefix="bondscope-sector") as ex:
+            yield lambda f, items: list(ex.map(f, items))
 
 
 def block_chain(leftward, rightward, first, last, n, store, tick, dtype):
@@ -225,8 +250,11 @@ def block_chain(leftward, rightward, first, last, n, store, tick, dtype):
     Notes
     -----
     Per site and sweep, one product with a bond block and one QR per sector:
-    cost sum_q (rows_q chi_q^2) instead of d chi^3, and memory for one
-    sector's matrices at a time besides the site's blocks.  The bond blocks
+    cost sum_q (rows_q chi_q^2) instead of d chi^3.  The sectors' small
+    factorisations run side by side, each with one BLAS thread, as many at
+    once as the BLAS had threads (threads inside a call of this size cost
+    more than they gain, many times more on a loaded machine).  Memory: the
+    site's blocks and the sector matrices in flight.  The bond blocks
     of the right-to-left sweep go to ``store`` (which spills past its budget),
     so the peak does not grow with N.
 
@@ -236,29 +264,29 @@ def block_chain(leftward, rightward, first, last, n, store, tick, dtype):
     S. Singh, R. N. C. Pfeifer and G. Vidal, Phys. Rev. B 83, 115125 (2011)
     -- block-sparse tensors of symmetric tensor networks.
     """
-    from scipy.linalg import svdvals
-
-    env, env_keys = None, [None] * (n + 1)
-    for i, blocks in leftward:
-        if env is None:
-            env = {last(): np.ones((1, 1), dtype=dtype)}
-        env = _lq_blocks(blocks, env)
-        if i > 0:
-            env_keys[i] = list(env)
-            for j, q in enumerate(env_keys[i]):
-                store.put(f"L{i}:{j}", env[q])
-        tick()
-    r = {first(): np.ones((1, 1), dtype=dtype)}
-    cuts = []
-    for i, blocks in rightward:
-        r = _qr_blocks(r, blocks)
-        tick()
-        if i == n - 1:
-            break
-        cut = []
-        for j, q in enumerate(env_keys[i + 1]):
-            e = store.pop(f"L{i + 1}:{j}")
-            if q in r:
-                cut.append((q, svdvals(r[q] @ e, overwrite_a=True, check_finite=False)))
-        cuts.append(sorted(cut))
+    env_keys = [None] * (n + 1)
+    with _sector_pool() as pool:
+        env = None
+        for i, blocks in leftward:
+            if env is None:
+                env = {last(): np.ones((1, 1), dtype=dtype)}
+            env = _run(pool, _lq_sector, _by_sector(blocks, env, left=True))
+            if i > 0:
+                env_keys[i] = list(env)
+                for j, q in enumerate(env_keys[i]):
+                    store.put(f"L{i}:{j}", env[q])
+            tick()
+        r = {first(): np.ones((1, 1), dtype=dtype)}
+        cuts = []
+        for i, blocks in rightward:
+            r = _run(pool, _qr_sector, _by_sector(blocks, r, left=False))
+            tick()
+            if i == n - 1:
+                break
+            met = {}
+            for j, q in enumerate(env_keys[i + 1]):
+                e = store.pop(f"L{i + 1}:{j}")
+                if q in r:
+                    met[q] = (r[q], e)
+            cuts.append(sorted(_run(pool, _cut_values, met).items()))
     return cuts, first(), last()

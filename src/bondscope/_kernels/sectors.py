@@ -189,7 +189,7 @@ def amplitude_sectors(src, charges, *, leak_tol=None, tick=None):
     return result
 
 
-def chain_sectors(src, charges, *, scratch=None, leak_tol=None, tick=None):
+def chain_sectors(src, charges, *, scratch=None, leak_tol=None, tick=None, route="auto"):
     """Charge-resolved spectra at every cut of an MPS in any gauge.
 
     Parameters
@@ -206,6 +206,8 @@ def chain_sectors(src, charges, *, scratch=None, leak_tol=None, tick=None):
         As for :func:`amplitude_sectors`.
     tick : callable, optional
         Called once per site tensor processed.
+    route : {"auto", "charge-sweep"}
+        ``"charge-sweep"`` skips the block-wise attempt on a dense chain.
 
     Returns
     -------
@@ -246,6 +248,8 @@ def chain_sectors(src, charges, *, scratch=None, leak_tol=None, tick=None):
         else:
             leftward, rightward, bonds = dense_blocks(src, charges)
             try:
+                if route == "charge-sweep":
+                    raise NotBlockStructured
                 raw, first, last = block_chain(
                     leftward, rightward, lambda: charges.key(bonds[0][0]),
                     lambda: charges.key(bonds[n][0]), n, store, tick, dtype)
@@ -273,7 +277,7 @@ def chain_sectors(src, charges, *, scratch=None, leak_tol=None, tick=None):
     return result
 
 
-def charge_spectra(src, charges, *, scratch=None, leak_tol=None, tick=None):
+def charge_spectra(src, charges, *, scratch=None, leak_tol=None, tick=None, route="auto"):
     """Charge-resolved Schmidt spectra at every cut of a state vector or an MPS.
 
     Dispatches to :func:`amplitude_sectors` (state vectors) or
@@ -287,7 +291,8 @@ def charge_spectra(src, charges, *, scratch=None, leak_tol=None, tick=None):
     """
     if src.kind == "state-vector":
         return amplitude_sectors(src, charges, leak_tol=leak_tol, tick=tick)
-    return chain_sectors(src, charges, scratch=scratch, leak_tol=leak_tol, tick=tick)
+    return chain_sectors(src, charges, scratch=scratch, leak_tol=leak_tol, tick=tick,
+                         route=route)
 
 
 def sector_measures(sectors, floor, charges, *, renyi=(), base=math.e):
