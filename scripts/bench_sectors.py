@@ -1,6 +1,7 @@
 """Block-wise against dense sweeps of a U(1) MPS: time and peak memory as ratios.
 
     python scripts/bench_sectors.py [--sites 64] [--chi 1024] [--sectors 9] [--charge-sweep]
+    python scripts/bench_sectors.py --pattern [--chi 1024]
 
 Writes one random particle-number-conserving qubit MPS (half filling, bond
 dimension min(2^b, 2^(L-b), chi) spread evenly over the ``--sectors`` charges
@@ -16,6 +17,11 @@ time and peak resident memory above the child's after imports):
 
 Every child saves its spectra; the script checks that all agree to 1e-12.
 Goal (issue 10): block-wise >= 5x faster than dense, peak <= 0.25x.
+
+``--pattern``: the bond-charge inference of one chi x 2 x chi block-structured
+tensor, bondscope's vectorised numpy form against a numba loop over the
+entries (defined here), best of 5 after a first call; and the numba loop's
+first call (import and compile).
 """
 
 import argparse
@@ -49,6 +55,64 @@ with src:
 np.savez(OUT, *[s[s > f] for s, f in zip(res.spectra, res.floors)])
 extra = {"route": res.route}
 """
+
+
+PATTERN = """
+import time
+from bondscope._charges import parse_charges
+from bondscope._kernels.blocksweep import infer_left_charges
+charges = parse_charges("0,1").bind([2])
+rng = np.random.default_rng(0)
+q = np.repeat(np.arange(9), CHI // 9 + 1)[:CHI].reshape(-1, 1)
+a = rng.standard_normal((CHI, 2, CHI)) * (q[None, None, :, 0] == q[:, None, None, 0]
+                                         + np.array([0, 1])[None, :, None])
+known, phys = np.ones(CHI, dtype=bool), charges.sites[0]
+
+t = time.perf_counter()
+import numba
+
+@numba.njit
+def loop(a, right, known, phys):
+    k, d, c = a.shape
+    left = np.zeros(k, dtype=np.int64)
+    has = np.zeros(k, dtype=np.bool_)
+    for i in range(k):
+        for s in range(d):
+            for b in range(c):
+                if a[i, s, b] != 0 and known[b]:
+                    v = right[b] - phys[s]
+                    if has[i] and left[i] != v:
+                        return left, False
+                    left[i], has[i] = v, True
+    return left, True
+loop(a, q[:, 0], known, phys[:, 0])
+first = time.perf_counter() - t
+
+def best(f):
+    out = []
+    for _ in range(5):
+        t = time.perf_counter()
+        f()
+        out.append(time.perf_counter() - t)
+    return min(out)
+left, _ = infer_left_charges(a, q, known, phys, charges)
+assert np.array_equal(left[:, 0], loop(a, q[:, 0], known, phys[:, 0])[0])
+extra = {"numba": best(lambda: loop(a, q[:, 0], known, phys[:, 0])),
+         "numpy": best(lambda: infer_left_charges(a, q, known, phys, charges)),
+         "first": first}
+"""
+
+
+def pattern(chi):
+    rep = child(_fill(PATTERN, CHI=chi))
+    if "failed" in rep:
+        print(f"pattern: failed: {rep['failed']}")
+        return
+    e = rep["extra"]
+    print(f"bond-charge inference, {chi} x 2 x {chi}: bondscope (numpy) "
+          f"{e['numpy'] * 1e3:.1f} ms, numba loop {e['numba'] * 1e3:.1f} ms (ratio "
+          f"{e['numpy'] / e['numba']:.1f}); numba's first call (import and compile) "
+          f"{e['first']:.2f} s")
 
 
 def chain_sectors(sites, chi, sectors, particles):
@@ -104,7 +168,12 @@ def main(argv=None):
     ap.add_argument("--sectors", type=int, default=9)
     ap.add_argument("--charge-sweep", action="store_true")
     ap.add_argument("--dir", default=None, help="directory for the two checkpoints")
+    ap.add_argument("--pattern", action="store_true",
+                    help="only the bond-charge inference: numba against numpy")
     args = ap.parse_args(argv)
+    if args.pattern:
+        pattern(args.chi)
+        return
     with tempfile.TemporaryDirectory(dir=args.dir) as tmp:
         packed, dense, bonds = write_files(tmp, args.sites, args.chi, args.sectors)
         mid = bonds[args.sites // 2]

@@ -237,13 +237,7 @@ def test_blockwise_equals_dense():
     blocked = charge_spectra(chain_from_arrays(tensors), charges)
     dense = charge_spectra(chain_from_arrays(scramble_gauge(rng, tensors)), charges)
     assert (blocked.route, dense.route) == ("block-sweep", "charge-sweep")
-    for a, b, fa, fb in zip(blocked.sectors, dense.sectors, blocked.floors, dense.floors):
-        floor = max(fa, fb)
-        x = {q: v[v > floor] for q, v in a if v[0] > floor}
-        y = {q: v[v > floor] for q, v in b if v[0] > floor}
-        assert list(x) == list(y)
-        for q in x:
-            np.testing.assert_allclose(x[q], y[q], atol=1e-12, rtol=0)
+    ref.assert_same_sectors(blocked, dense, atol=1e-12)
 
 
 # ---------------------------------------------------------------- refusal
@@ -335,3 +329,23 @@ def test_cyclic_charges_have_no_variance():
     assert m["charge_variance"][1] is None and m["charge_mean"][1] is None
     assert m["charge_variance"][0] > 0
     assert all(isinstance(s["charge"], list) and len(s["charge"]) == 2 for s in m["sectors"])
+
+
+@pytest.mark.parametrize("gauge", [
+    "blocks",       # block-wise sweep: one stored matrix per sector and bond
+    "scrambled",    # charge-carrying sweep: one dense matrix per bond
+])
+def test_spilled_bonds_give_the_same_values(tmp_path, monkeypatch, gauge):
+    """With no memory budget every bond matrix goes through the scratch directory."""
+    import bondscope._kernels.spill as spill
+
+    rng = np.random.default_rng(8)
+    tensors, _ = ref.random_symmetric_chain(rng, [QUBIT] * 8, (0,), (4,), 3)
+    if gauge == "scrambled":
+        tensors = scramble_gauge(rng, tensors)
+    charges = _bind(QUBIT, [0], 8)
+    kept = charge_spectra(chain_from_arrays(tensors), charges)
+    monkeypatch.setattr(spill, "STORE_BYTES", 0)
+    spilled = charge_spectra(chain_from_arrays(tensors), charges, scratch=str(tmp_path))
+    ref.assert_same_sectors(kept, spilled, atol=0.0)
+    assert list(tmp_path.iterdir()) == []           # the private spill directory is removed

@@ -45,6 +45,7 @@ __all__ = [
     "block_gauge",
     "brute_sectors",
     "left_charges",
+    "assert_same_sectors",
 ]
 
 
@@ -259,3 +260,15 @@ def brute_sectors(psi, tables, moduli):
             cut[tuple(int(v) for v in key)] = np.clip(w, 0.0, None)
         out.append(cut)
     return out
+
+
+def assert_same_sectors(a, b, atol):
+    """Two charge-resolved results agree: the same sectors with values above both floors,
+    and those values equal to ``atol`` (sectors of noise below the floor are ignored)."""
+    for x, y, fx, fy in zip(a.sectors, b.sectors, a.floors, b.floors):
+        floor = max(fx, fy)
+        xs = {q: v[v > floor] for q, v in x if v[0] > floor}
+        ys = {q: v[v > floor] for q, v in y if v[0] > floor}
+        assert list(xs) == list(ys)
+        for q in xs:
+            np.testing.assert_allclose(xs[q], ys[q], atol=atol, rtol=0)

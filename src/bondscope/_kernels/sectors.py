@@ -42,6 +42,9 @@ __all__ = ["SectorResult", "charge_spectra", "sector_measures", "leak_tolerance"
 # A state whose weight outside its dominant total charge is at most this many
 # eps of its stored precision counts as an eigenstate (as the norm check does).
 _LEAK_EPS_UNITS = 100
+# The sweeps keep the bond matrices of this many bonds in memory (and spill the rest),
+# up to the store's byte budget: block-sparse bonds are small, so they spill sooner.
+_KEEP_BONDS = 16
 
 
 class SectorResult:
@@ -141,6 +144,7 @@ def amplitude_sectors(src, charges, *, leak_tol=None, tick=None):
     Returns
     -------
     SectorResult
+        Route ``sector-svd``.
 
     Raises
     ------
@@ -189,6 +193,17 @@ def amplitude_sectors(src, charges, *, leak_tol=None, tick=None):
     return result
 
 
+def _store_budget(src):
+    """Bytes of bond matrices kept in memory: those of _KEEP_BONDS bonds, at most STORE_BYTES."""
+    from .spill import STORE_BYTES
+
+    if hasattr(src, "bond_sectors"):
+        largest = max(sum(d * d for d in sectors.values()) for sectors in src.bond_sectors)
+    else:
+        largest = max(src.bond_dims) ** 2
+    return min(STORE_BYTES, _KEEP_BONDS * largest * src.compute_dtype.itemsize)
+
+
 def chain_sectors(src, charges, *, scratch=None, leak_tol=None, tick=None, route="auto"):
     """Charge-resolved spectra at every cut of an MPS in any gauge.
 
@@ -216,7 +231,8 @@ def chain_sectors(src, charges, *, scratch=None, leak_tol=None, tick=None, route
     Raises
     ------
     CheckpointError
-        Zero norm, or the state is not an eigenstate of the total charge.
+        The state has zero norm, is not an eigenstate of the total charge,
+        or a left block's weight has no definite charge.
 
     Notes
     -----
@@ -227,8 +243,9 @@ def chain_sectors(src, charges, *, scratch=None, leak_tol=None, tick=None, route
     charges (at once, for a gauge that mixes charges) the sweep restarts
     with the charge-carrying sweep (:func:`.labelsweep.labelled_chain`),
     about four times the work of the plain engine.  Memory in every route:
-    a few site tensors plus the bond matrices in a store that spills to
-    ``scratch``, independent of N.  Floors: eps times bond dimension times
+    a few site tensors plus the bond matrices in a store that keeps those of
+    16 bonds (at most 32 MiB) in memory and spills the rest to ``scratch``,
+    independent of N.  Floors: eps times bond dimension times
     d times lambda_max, as for the plain sweep.
     """
     from .blocksweep import NotBlockStructured, block_chain, dense_blocks
@@ -238,7 +255,7 @@ def chain_sectors(src, charges, *, scratch=None, leak_tol=None, tick=None, route
     tick = tick or (lambda: None)
     n, dtype = src.sites, src.compute_dtype
     tol = leak_tolerance(src.dtype) if leak_tol is None else leak_tol
-    with SpillStore(scratch) as store:
+    with SpillStore(scratch, _store_budget(src)) as store:
         if hasattr(src, "blocks"):
             raw, first, last = block_chain(
                 ((i, src.blocks(i)) for i in range(n - 1, -1, -1)),
