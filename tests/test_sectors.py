@@ -337,7 +337,7 @@ def test_cyclic_charges_have_no_variance():
 ])
 def test_spilled_bonds_give_the_same_values(tmp_path, monkeypatch, gauge):
     """With no memory budget every bond matrix goes through the scratch directory."""
-    import bondscope._kernels.spill as spill
+    import bondscope._kernels.store as store
 
     rng = np.random.default_rng(8)
     tensors, _ = ref.random_symmetric_chain(rng, [QUBIT] * 8, (0,), (4,), 3)
@@ -345,7 +345,7 @@ def test_spilled_bonds_give_the_same_values(tmp_path, monkeypatch, gauge):
         tensors = scramble_gauge(rng, tensors)
     charges = _bind(QUBIT, [0], 8)
     kept = charge_spectra(chain_from_arrays(tensors), charges)
-    monkeypatch.setattr(spill, "STORE_BYTES", 0)
+    monkeypatch.setattr(store, "STORE_BYTES", 0)
     spilled = charge_spectra(chain_from_arrays(tensors), charges, scratch=str(tmp_path))
     ref.assert_same_sectors(kept, spilled, atol=0.0)
     assert list(tmp_path.iterdir()) == []           # the private spill directory is removed

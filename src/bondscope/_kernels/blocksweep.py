@@ -16,13 +16,13 @@ it: the charges of the bond indices are inferred from the pattern while the
 right-to-left sweep reads the tensors (:func:`infer_left_charges`).
 """
 
-import os
 from concurrent.futures import ThreadPoolExecutor
 from contextlib import contextmanager
 
 import numpy as np
 
-from .spill import r_factor
+from .linalg import r_factor, svdvals
+from .parallel import blas_threads
 
 __all__ = ["NotBlockStructured", "infer_left_charges", "split_blocks", "block_chain",
            "dense_blocks", "charge_groups"]
@@ -198,9 +198,7 @@ def _qr_sector(pairs):
 
 
 def _cut_values(pair):
-    from scipy.linalg import svdvals
-
-    return svdvals(pair[0] @ pair[1], overwrite_a=True, check_finite=False)
+    return svdvals(pair[0] @ pair[1])
 
 
 def _by_sector(blocks, bond, left):
@@ -222,10 +220,9 @@ def _run(pool, task, groups):
 def _sector_pool():
     """A map over sectors: one BLAS thread per sector, as many sectors at once as the BLAS
     had threads (small factorisations gain nothing from threads inside one call)."""
-    from threadpoolctl import threadpool_info, threadpool_limits
+    from threadpoolctl import threadpool_limits
 
-    counts = [lib["num_threads"] for lib in threadpool_info() if lib["user_api"] == "blas"]
-    workers = max(counts) if counts else (os.cpu_count() or 1)
+    workers = blas_threads()
     with threadpool_limits(limits=1, user_api="blas"):
         if workers < 2:
             yield lambda f, items: list(map(f, items))
@@ -246,7 +243,7 @@ def block_chain(leftward, rightward, first, last, n, store, tick, dtype):
         end's single bond index (called after the right-to-left sweep).
     n : int
         Number of sites.
-    store : SpillStore
+    store : BondStore
         Holds the right-to-left sweep's bond blocks until the other sweep needs them.
     tick : callable
         Called once per site tensor processed.

@@ -29,15 +29,10 @@ charge distribution.
 
 import numpy as np
 
-from .spill import r_factor
+from .chain import lq_step
+from .linalg import svdvals
 
 __all__ = ["labelled_chain"]
-
-
-def _lq_step(a, env):
-    """L_i of the right-to-left sweep: A_i L_{i+1} reshaped (left, d right) = L_i Q_i."""
-    m = (a.reshape(-1, a.shape[2]) @ env).reshape(a.shape[0], -1)
-    return r_factor(m.T).T
 
 
 def _label_step(r, labels, a, site, charges):
@@ -63,12 +58,10 @@ def _label_step(r, labels, a, site, charges):
 
 def _sectors(b, labels):
     """Raw singular values of the rows of ``b`` grouped by label: list of (key, values)."""
-    from scipy.linalg import svdvals
-
     keys, code = np.unique(labels, axis=0, return_inverse=True)
     code = code.reshape(-1)
     return [(tuple(int(v) for v in key),
-             svdvals(b[code == j], overwrite_a=True, check_finite=False))
+             svdvals(b[code == j]))
             for j, key in enumerate(keys)]
 
 
@@ -81,7 +74,7 @@ def labelled_chain(src, charges, store, tick):
         Site tensors (left, phys, right), read one at a time.
     charges : ChainCharges
         Local charges bound to ``src``'s sites.
-    store : SpillStore
+    store : BondStore
         Holds the right-to-left sweep's bond matrices.
     tick : callable
         Called once per site tensor processed.
@@ -117,7 +110,7 @@ def labelled_chain(src, charges, store, tick):
     n = src.sites
     env = np.ones((1, 1), dtype=src.compute_dtype)
     for i in range(n - 1, 0, -1):
-        env = _lq_step(src.tensor(i), env)
+        env = lq_step(src.tensor(i), env)
         store.put(f"L{i}", env)
         tick()
     r = np.ones((1, 1), dtype=src.compute_dtype)

@@ -195,7 +195,7 @@ def amplitude_sectors(src, charges, *, leak_tol=None, tick=None):
 
 def _store_budget(src):
     """Bytes of bond matrices kept in memory: those of _KEEP_BONDS bonds, at most STORE_BYTES."""
-    from .spill import STORE_BYTES
+    from .store import STORE_BYTES
 
     if hasattr(src, "bond_sectors"):
         largest = max(sum(d * d for d in sectors.values()) for sectors in src.bond_sectors)
@@ -250,38 +250,40 @@ def chain_sectors(src, charges, *, scratch=None, leak_tol=None, tick=None, route
     """
     from .blocksweep import NotBlockStructured, block_chain, dense_blocks
     from .labelsweep import labelled_chain
-    from .spill import SpillStore
+    from .store import BondStore
 
     tick = tick or (lambda: None)
     n, dtype = src.sites, src.compute_dtype
     tol = leak_tolerance(src.dtype) if leak_tol is None else leak_tol
-    with SpillStore(scratch, _store_budget(src)) as store:
-        if hasattr(src, "blocks"):
+    budget = _store_budget(src)
+    if hasattr(src, "blocks"):
+        with BondStore(scratch, budget) as store:
             raw, first, last = block_chain(
                 ((i, src.blocks(i)) for i in range(n - 1, -1, -1)),
                 ((i, src.blocks(i)) for i in range(n)),
                 lambda: src.first_charge, lambda: src.last_charge, n, store, tick, dtype)
-            route, leak = "block-sweep", 0.0
-        else:
+        route, leak = "block-sweep", 0.0
+    else:
+        try:
+            if route == "charge-sweep":
+                raise NotBlockStructured
             leftward, rightward, bonds = dense_blocks(src, charges)
-            try:
-                if route == "charge-sweep":
-                    raise NotBlockStructured
+            with BondStore(scratch, budget) as store:
                 raw, first, last = block_chain(
                     leftward, rightward, lambda: charges.key(bonds[0][0]),
                     lambda: charges.key(bonds[n][0]), n, store, tick, dtype)
-                route, leak = "block-sweep", 0.0
-            except NotBlockStructured:
-                store.clear()
+            route, leak = "block-sweep", 0.0
+        except NotBlockStructured:
+            with BondStore(scratch, budget) as store:
                 raw, mislabelled, totals = labelled_chain(src, charges, store, tick)
-                total, outside = _refuse(src.name, totals, charges, tol)
-                worst = max(mislabelled, default=0.0)
-                if worst > tol:
-                    raise CheckpointError(
-                        f"{src.name}: not an eigenstate of the total charge: weight "
-                        f"{worst:.3g} of a cut's left block has no definite charge; check "
-                        "the local charges (--charges), or profile without them") from None
-                route, leak = "charge-sweep", outside + worst
+            total, outside = _refuse(src.name, totals, charges, tol)
+            worst = max(mislabelled, default=0.0)
+            if worst > tol:
+                raise CheckpointError(
+                    f"{src.name}: not an eigenstate of the total charge: weight "
+                    f"{worst:.3g} of a cut's left block has no definite charge; check "
+                    "the local charges (--charges), or profile without them") from None
+            route, leak = "charge-sweep", outside + worst
     if route == "block-sweep":
         raw = [sorted((charges.key(charges.sub(q, first)), v) for q, v in cut)
                for cut in raw]
