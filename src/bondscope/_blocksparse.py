@@ -45,15 +45,15 @@ from pathlib import Path
 import numpy as np
 
 from ._blockforms import find_block_layouts, form_of, read_site, site_groups
-from ._charges import ChainCharges, parse_charges
+from ._charges import FLOWS, ChainCharges, parse_charges
 from ._checkpoint import _family, _numbering_problem, _open, _reader, _stored_dtype
 from ._errors import CheckpointError
 from ._source import AXIS_WORDS, _canonical, _Held, compute_dtype, parse_axes
 
-__all__ = ["open_blocks", "find_block_layouts", "BlockChainSource", "FORMS", "FLOWS"]
+__all__ = ["open_blocks", "find_block_layouts", "has_block_layout", "BlockChainSource",
+           "FORMS"]
 
 FORMS = ("blocks", "packed", "labelled")
-FLOWS = ("rightward", "leftward")
 
 
 def _local_table(sites, charges, modulus, where):
@@ -277,6 +277,16 @@ def _offsets(sectors):
         out[k] = np.arange(at, at + d)
         at += d
     return out
+
+
+def has_block_layout(path):
+    """True when ``path`` is a readable HDF5 file holding a block-sparse layout (metadata only)."""
+    try:
+        f = _open(path)
+    except CheckpointError:
+        return False
+    with f:
+        return bool(find_block_layouts(f))
 
 
 def open_blocks(path, *, pattern=None, form=None, charges=None, modulus=None, axes=None,

@@ -46,7 +46,9 @@ from numbers import Integral
 
 import numpy as np
 
-__all__ = ["ChargeSpec", "ChainCharges", "parse_charges"]
+__all__ = ["ChargeSpec", "ChainCharges", "parse_charges", "charge_options", "FLOWS"]
+
+FLOWS = ("rightward", "leftward")
 
 _COUNTED = re.compile(r"^\s*(\d*)\s*\*(.*)$")
 
@@ -218,8 +220,8 @@ class ChargeSpec:
                 lists = ";".join(",".join(str(int(v)) for v in col) for col in table.T)
                 raise ValueError(f"{where}: site {labels[i]} has local dimension {d}, but "
                                  f"its charge list {lists} has {table.shape[0]} entries; give "
-                                 "one integer per local basis state (per-site form: "
-                                 "'COUNT*LIST/...', see --help)")
+                                 "one integer per local basis state (per-site form "
+                                 "'COUNT*LIST/...', docs/charges.md)")
         return ChainCharges(tables, self.moduli)
 
 
@@ -297,6 +299,32 @@ def parse_charges(charges, modulus=None):
     return ChargeSpec(groups, moduli)
 
 
+def charge_options(charges, modulus, label):
+    """Validated ``charges``/``modulus`` options: (canonical text or None, moduli or None).
+
+    ``label(name)`` names an option in messages (parameter and CLI flag).
+
+    Raises
+    ------
+    ValueError, TypeError
+        As :func:`parse_charges`, the message naming the option; a modulus
+        without charges.
+    """
+    if charges is None:
+        if modulus is not None:
+            raise ValueError(f"{label('modulus')} needs local charges ({label('charges')})")
+        return None, None
+    try:
+        spec = parse_charges(charges, modulus)
+    except ValueError as exc:
+        name, _, rest = str(exc).partition(":")
+        if name.split()[0] in ("charges", "modulus"):
+            raise ValueError(f"{label(name.split()[0])}{name[len(name.split()[0]):]}:{rest}") \
+                from None
+        raise
+    return spec.text(), spec.moduli
+
+
 class ChainCharges:
     """Local charges bound to the sites of one chain, with charge arithmetic.
 
@@ -357,6 +385,18 @@ class ChainCharges:
             t = self.sites[i]
             out = self.add(out[:, None, :], t[None, :, :]).reshape(-1, self.quantities)
         return out
+
+    def spec_text(self):
+        """The per-site charges as CLI text (runs of equal sites as counted groups)."""
+        groups = []
+        for table in self.sites:
+            if groups and np.array_equal(groups[-1][1], table):
+                groups[-1][0] += 1
+            else:
+                groups.append([1, table])
+        if len(groups) == 1:
+            return ChargeSpec([(None, groups[0][1])], self.moduli).text()
+        return ChargeSpec([tuple(g) for g in groups], self.moduli).text()
 
     def label(self, key):
         """A charge as written in documents: an int for one quantity, else a list."""

@@ -22,7 +22,7 @@ __all__ = ["atomic_write", "format_of", "SUFFIXES", "H5_GROUP", "json_default", 
 
 H5_GROUP = "bondscope_profile"
 _COLUMNS = ("position", "bond_dimension", "schmidt_rank", "entropy", "resolution_floor",
-            "kept", "discarded_weight")
+            "kept", "discarded_weight", "number_entropy", "configurational_entropy")
 _INT_COLUMNS = ("position", "bond_dimension", "schmidt_rank", "kept")
 SUFFIXES = {".json": "json", ".h5": "h5", ".hdf5": "h5", ".csv": "csv"}
 

@@ -14,10 +14,14 @@ import math
 import os
 from numbers import Integral, Real
 
-__all__ = ["ProfileOptions", "LAYOUT", "MEASURES", "RESOURCES", "option_label"]
+__all__ = ["ProfileOptions", "LAYOUT", "BLOCK_LAYOUT", "MEASURES", "RESOURCES",
+           "option_label"]
 
 LAYOUT = ("state", "tensors", "local_dim", "axes")
-MEASURES = ("renyi", "base", "spectrum", "bond_dim", "weight_tol", "route", "precision")
+# block-sparse checkpoints (bondscope._blocksparse)
+BLOCK_LAYOUT = ("blocks", "block_form", "charge_flow")
+MEASURES = ("renyi", "base", "spectrum", "bond_dim", "weight_tol", "route", "precision",
+            "charges", "modulus")
 # how a profile is computed, not what it holds (left out of a batch result's record)
 RESOURCES = ("scratch", "max_memory", "threads")
 ROUTES = ("auto", "gram", "svd")
@@ -101,6 +105,18 @@ class ProfileOptions:
         Refuse work whose estimate exceeds this many bytes (default: available memory).
     threads : int, optional
         BLAS/LAPACK threads for the duration of the work.
+    charges : str or sequence, optional
+        Local charges, one integer per local basis state (several quantities,
+        per-site groups: see :mod:`bondscope._charges`); adds the
+        charge-resolved spectra to every cut.  Kept as canonical text.
+    modulus : int, str or sequence of int, optional
+        One per quantity: M >= 2 makes it a Z_M charge, 0 an integer charge.
+    blocks : str, optional
+        Block-sparse checkpoint: site group pattern with ``{site}``.
+    block_form : {"blocks", "packed", "labelled"}, optional
+        Block-sparse form (found from the groups' members when omitted).
+    charge_flow : {"rightward", "leftward"}
+        Block conservation rule: q_right = q_left + q_phys, or q_left = q_right + q_phys.
 
     Raises
     ------
@@ -132,6 +148,11 @@ class ProfileOptions:
     scratch: str = None
     max_memory: int = None
     threads: int = None
+    charges: object = None
+    modulus: tuple = None
+    blocks: str = None
+    block_form: str = None
+    charge_flow: str = "rightward"
 
     def __post_init__(self):
         from ._measure import renyi_orders
@@ -174,6 +195,27 @@ class ProfileOptions:
             put("max_memory", _integer(self.max_memory, "max_memory", 1))
         if self.threads is not None:
             put("threads", _integer(self.threads, "threads", 1))
+        self._check_charges(put)
+
+    def _check_charges(self, put):
+        from ._blocksparse import FORMS
+        from ._charges import FLOWS, charge_options
+
+        charges, moduli = charge_options(self.charges, self.modulus, option_label)
+        put("charges", charges)
+        put("modulus", moduli)
+        if self.blocks is not None:
+            if not isinstance(self.blocks, str) or "{site}" not in self.blocks:
+                raise ValueError(f"{option_label('blocks')} {self.blocks!r} needs a {{site}} "
+                                 "placeholder, e.g. /state/site{site}")
+            if self.state is not None or self.tensors is not None:
+                raise ValueError(f"give {option_label('blocks')} or a dense layout "
+                                 "(state=, tensors=), not both")
+        for name, allowed in (("block_form", (None, *FORMS)), ("charge_flow", FLOWS)):
+            if getattr(self, name) not in allowed:
+                raise ValueError(f"{option_label(name)} must be one of "
+                                 f"{', '.join(a for a in allowed if a)}, found "
+                                 f"{getattr(self, name)!r}")
 
     @classmethod
     def from_kwargs(cls, options=None, **kwargs):
@@ -221,7 +263,7 @@ class ProfileOptions:
         """Every option as JSON-ready values."""
         out = dataclasses.asdict(self)
         out["renyi"] = list(self.renyi)
-        for name in ("local_dim", "axes"):
+        for name in ("local_dim", "axes", "modulus"):
             if isinstance(out[name], tuple):
                 out[name] = list(out[name])
         return out

@@ -30,8 +30,15 @@ def open_any(source, options):
     from ._source import amplitudes_from_array, chain_from_arrays
 
     if isinstance(source, (str, os.PathLike)):
+        from ._blocksparse import has_block_layout, open_blocks
         from ._checkpoint import open_source
 
+        dense = options.state is not None or options.tensors is not None
+        if options.blocks or options.block_form or (not dense and has_block_layout(source)):
+            return open_blocks(source, pattern=options.blocks, form=options.block_form,
+                               charges=options.charges, modulus=options.modulus,
+                               axes=options.axes, flow=options.charge_flow,
+                               precision=options.precision)
         return open_source(source, precision=options.precision, **options.layout)
     if options.state is not None or options.tensors is not None:
         raise ValueError("state= and tensors= name datasets in a checkpoint file; "
@@ -76,10 +83,32 @@ def _amplitude_kernel(src, opts, tick):
     return result, None
 
 
+def _charge_kernel(src, opts, tick):
+    from ._kernels.sectors import charge_spectra
+
+    result = charge_spectra(src, _bound_charges(src, opts), scratch=opts.scratch, tick=tick)
+    return result, src.bond_dims if src.kind == "mps" else None
+
+
+def _bound_charges(src, opts):
+    if hasattr(src, "blocks"):
+        return src.charges
+    from ._charges import parse_charges
+    from ._options import option_label
+
+    return parse_charges(opts.charges, opts.modulus).bind(
+        src.local_dims, getattr(src, "labels", None), where=option_label("charges"))
+
+
 # source kind -> (kernel, progress steps); a kernel returns (SweepResult, stored bonds or None)
 KERNELS = {
     "mps": (_chain_kernel, lambda src: 2 * src.sites - 1),
     "state-vector": (_amplitude_kernel, lambda src: src.sites - 1),
+}
+# with local charges (or a block-sparse source): charge-resolved spectra
+CHARGE_KERNELS = {
+    "mps": (_charge_kernel, lambda src: 2 * src.sites),
+    "state-vector": (_charge_kernel, lambda src: src.sites - 1),
 }
 
 
@@ -150,7 +179,8 @@ def profile(source, options=None, *, progress=False, **kwargs):
     with open_any(source, opts) as src:
         route = _route(src, opts)
         check_memory(estimate(src, route, opts.truncating), opts.max_memory)
-        kernel, steps = KERNELS[src.kind]
+        charged = opts.charges is not None or hasattr(src, "blocks")
+        kernel, steps = (CHARGE_KERNELS if charged else KERNELS)[src.kind]
         if route is not None:
             opts = opts.replace(route=route)
         with _threads(opts.threads), _progress(steps(src), progress, "profile") as bar:
@@ -194,6 +224,10 @@ def _document(src, opts, result, bonds):
     if opts.truncating:
         doc["truncation"] = {"bond_dim": opts.bond_dim, "weight_tol": opts.weight_tol,
                              "infidelity": result.infidelity, "bound": bound}
+    if hasattr(result, "sectors"):
+        from ._kernels.sectors import sector_document
+
+        doc["charges"] = sector_document(result, _bound_charges(src, opts), opts, cuts)
     doc["cuts"] = cuts
     return doc
 

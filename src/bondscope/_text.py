@@ -42,6 +42,9 @@ def profile_table(profile):
     head = ["cut", "bond", "rank", "S"] + [f"S_{a}" for a in orders] + ["floor"]
     if trunc:
         head += ["kept", "discarded"]
+    charged = bool(cuts) and "number_entropy" in cuts[0]
+    if charged:
+        head += ["S_num", "S_conf", "leading sectors (charge:p)"]
     rows = []
     for c in cuts:
         row = [str(c["position"]), str(c.get("bond_dimension", "")),
@@ -50,6 +53,9 @@ def profile_table(profile):
         row.append(f"{c.get('resolution_floor', float('nan')):.1e}")
         if trunc:
             row += [str(c.get("kept", "")), f"{c.get('discarded_weight', 0.0):.3e}"]
+        if charged:
+            row += [f"{c['number_entropy']:.6f}", f"{c['configurational_entropy']:.6f}",
+                    _leading_sectors(c["sectors"])]
         rows.append(row)
     widths = [max(len(h), *(len(r[i]) for r in rows)) for i, h in enumerate(head)]
     fmt = "  ".join(f"{{:>{w}}}" for w in widths)
@@ -60,10 +66,27 @@ def profile_table(profile):
         lines.append(f"max S = {peak['entropy']:.10f} at cut {peak['position']}; "
                      f"max bond {max(c.get('bond_dimension', 0) for c in cuts)}")
     if trunc:
+        infid = trunc["infidelity"]
         lines.append(f"truncation bond_dim={trunc['bond_dim']} weight_tol={trunc['weight_tol']}: "
-                     f"infidelity {trunc['infidelity']:.6e} (bound: sum of discarded weights "
-                     f"{trunc['bound']:.6e})")
+                     f"infidelity {'not tracked' if infid is None else f'{infid:.6e}'} (bound: "
+                     f"sum of discarded weights {trunc['bound']:.6e})")
+    charges = profile.get("charges")
+    if charges:
+        moduli = ",".join(map(str, charges["moduli"]))
+        lines.append(f"charges {charges['local']} (moduli {moduli}): total charge "
+                     f"{charges['total']}, weight outside it {charges['outside_weight']:.1e}")
     return "\n".join(lines)
+
+
+def _leading_sectors(sectors, shown=3):
+    """'2:0.412 3:0.351 1:0.118' -- the sectors of largest probability."""
+    top = sorted(sectors, key=lambda s: -s["probability"])[:shown]
+    text = " ".join(f"{_charge_text(s['charge'])}:{s['probability']:.3f}" for s in top)
+    return text + (" ..." if len(sectors) > shown else "")
+
+
+def _charge_text(charge):
+    return f"({','.join(map(str, charge))})" if isinstance(charge, list) else str(charge)
 
 
 def inspect_text(info):

@@ -70,6 +70,25 @@ FLAGS = {
              "(default 2)")),
     "axes": ("layout", ("--axes",), dict(
         metavar="ORDER", help="axis order of the site tensors, a permutation of left,phys,right")),
+    # block-sparse checkpoints
+    "blocks": ("layout", ("--blocks",), dict(
+        metavar="PATTERN", help="block-sparse MPS: site groups, with a {site} placeholder, "
+                                "e.g. /state/site{site}")),
+    "block_form": ("layout", ("--block-form",), dict(
+        metavar="FORM", help="block-sparse form: blocks, packed or labelled (default: found "
+                             "from the groups)")),
+    "charge_flow": ("layout", ("--charge-flow",), dict(
+        metavar="DIR", default="rightward",
+        help="block charges obey q_right = q_left + q_phys (rightward, default) or "
+             "q_left = q_right + q_phys (leftward)")),
+    # charges
+    "charges": ("measures", ("--charges",), dict(
+        metavar="Q", help="local charges, one integer per basis state (0,1; -1,0,1); "
+                          "quantities separated by ';', per-site groups 'N*LIST/*LIST' "
+                          "(docs/charges.md); adds charge-resolved spectra")),
+    "modulus": ("measures", ("--modulus",), dict(
+        metavar="M", help="one per quantity: M >= 2 for a Z_M charge (parity: 2), 0 for an "
+                          "integer charge")),
     # measures
     "renyi": ("measures", ("--renyi",), dict(metavar="ALPHAS", type=_words, default=[],
                                              help="Renyi orders, e.g. 0.5,2,inf")),
@@ -117,8 +136,9 @@ FLAGS = {
         help="decay exponent of the alternating term (default 1, free fermions)")),
 }
 
-LAYOUT_FLAGS = ("state", "tensors", "local_dim", "axes")
-MEASURE_FLAGS = ("renyi", "base", "spectrum", "bond_dim", "weight_tol", "route", "precision")
+LAYOUT_FLAGS = ("state", "tensors", "local_dim", "axes", "blocks", "block_form", "charge_flow")
+MEASURE_FLAGS = ("renyi", "base", "spectrum", "bond_dim", "weight_tol", "route", "precision",
+                 "charges", "modulus")
 RESOURCE_FLAGS = ("max_memory", "scratch", "threads", "quiet")
 FIT_FLAGS = ("boundary", "window", "corrections", "parity_exponent")
 _TITLES = {"layout": "checkpoint layout (auto-detected when omitted)", "measures": "measures",
@@ -153,9 +173,9 @@ def _registered(args, names):
 
 def profile_options(args, **overrides):
     """The :class:`~bondscope.ProfileOptions` that the verb's registered flags set."""
-    from .._options import LAYOUT, MEASURES, RESOURCES, ProfileOptions
+    from .._options import BLOCK_LAYOUT, LAYOUT, MEASURES, RESOURCES, ProfileOptions
 
-    kwargs = _registered(args, (*LAYOUT, *MEASURES, *RESOURCES))
+    kwargs = _registered(args, (*LAYOUT, *BLOCK_LAYOUT, *MEASURES, *RESOURCES))
     kwargs.update(overrides)
     return ProfileOptions.from_kwargs(**kwargs)
 

@@ -34,7 +34,7 @@ import math
 import numpy as np
 
 from .._errors import CheckpointError
-from .._measure import entropy_measures, resolution_floor
+from .._measure import resolution_floor, spectrum_measures
 from .blocksweep import charge_groups
 
 __all__ = ["SectorResult", "charge_spectra", "sector_measures", "leak_tolerance"]
@@ -360,15 +360,17 @@ def sector_measures(sectors, floor, charges, *, renyi=(), base=math.e):
             continue
         s_floor = floor / math.sqrt(p)
         normed = v / math.sqrt(p)
-        m = entropy_measures(normed, renyi=renyi, base=base, floor=s_floor)
+        m = spectrum_measures(normed, renyi, base, s_floor)
         number -= p * math.log(p)
         conf += p * m["entropy"] / scale
         probs.append(p)
         keys.append(q)
         if v[0] <= floor:
             continue
-        listed.append({"charge": charges.label(q), "probability": p, "entropy": m["entropy"],
-                       "renyi": m["renyi"], "schmidt_rank": m["schmidt_rank"],
+        listed.append({"charge": charges.label(q), "probability": p,
+                       "entropy": m["entropy"] + 0.0,          # never -0.0
+                       "renyi": {k: v + 0.0 for k, v in m["renyi"].items()},
+                       "schmidt_rank": m["schmidt_rank"],
                        "resolution_floor": s_floor, "values": normed[normed > s_floor]})
     probs = np.array(probs)
     karr = np.array(keys, dtype=np.float64).reshape(len(keys), -1)
@@ -386,3 +388,31 @@ def sector_measures(sectors, floor, charges, *, renyi=(), base=math.e):
             "configurational_entropy": max(conf, 0.0) * scale,
             "charge_mean": means[0] if one else means,
             "charge_variance": variances[0] if one else variances}
+
+
+def sector_document(result, charges, opts, cuts):
+    """Add the charge-resolved fields to each cut's document entry; return the top-level
+    ``charges`` field.
+
+    Parameters
+    ----------
+    result : SectorResult
+    charges : ChainCharges
+    opts : ProfileOptions
+        ``renyi``, ``base_value`` and ``spectrum`` are used.
+    cuts : list of dict
+        The per-cut entries, extended in place with ``sectors``,
+        ``number_entropy``, ``configurational_entropy``, ``charge_mean`` and
+        ``charge_variance`` (docs/profile-schema.md).
+    """
+    for cut, sectors, floor in zip(cuts, result.sectors, result.floors):
+        m = sector_measures(sectors, floor, charges, renyi=opts.renyi, base=opts.base_value)
+        for sec in m["sectors"]:
+            values = sec.pop("values")
+            if opts.spectrum:
+                k = values.size if opts.spectrum is True else opts.spectrum
+                sec["schmidt_values"] = values[:k].tolist()
+        cut.update(m)
+    return {"local": charges.spec_text(), "moduli": list(charges.moduli),
+            "quantities": charges.quantities, "total": charges.label(result.total_charge),
+            "outside_weight": result.leak}
