@@ -143,19 +143,27 @@ def _example_chain(seed=7, sites=8, particles=4, max_dim=3):
     return tensors, labels, [table] * sites
 
 
-def example_files(directory):
-    """Write examples/blocks.h5, packed.h5, labelled.h5 (and dense.h5) into ``directory``.
+def example_files(directory, run=None):
+    """Write blocks.h5, packed.h5, labelled.h5 and dense.h5 into ``directory``.
 
-    The same 8-site chain with 4 particles in each form; profile any of them
-    with ``bondscope profile FILE --charges 0,1``.
+    The same 8-site chain with 4 particles in each form (files replaced);
+    ``run`` becomes the root attribute ``run_id``.
     """
     from pathlib import Path
 
     out = Path(directory)
     out.mkdir(parents=True, exist_ok=True)
     tensors, labels, tables = _example_chain()
-    paths = {"blocks": write_blocks(out / "blocks.h5", tensors, labels, tables),
-             "packed": write_packed(out / "packed.h5", tensors, labels, tables),
-             "labelled": write_labelled(out / "labelled.h5", tensors, labels, tables),
-             "dense": write_dense(out / "dense.h5", tensors)}
+    writers = {"blocks": lambda p: write_blocks(p, tensors, labels, tables),
+               "packed": lambda p: write_packed(p, tensors, labels, tables),
+               "labelled": lambda p: write_labelled(p, tensors, labels, tables),
+               "dense": lambda p: write_dense(p, tensors)}
+    paths = {}
+    for form, write in writers.items():
+        path = out / f"{form}.h5"
+        path.unlink(missing_ok=True)
+        paths[form] = write(path)
+        if run is not None:
+            with h5py.File(path, "a") as f:
+                f.attrs["run_id"] = run
     return paths

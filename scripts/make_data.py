@@ -4,8 +4,8 @@ Regenerate everything that is committed (about 15 seconds)::
 
     python scripts/make_data.py
 
-Parts can be written alone with ``--only demo``, ``--only series`` or
-``--only fixtures``. Large checkpoints (not committed) are written on
+Parts can be written alone with ``--only demo``, ``--only series``,
+``--only fixtures`` or ``--only charges``. Large checkpoints (not committed) are written on
 demand::
 
     python scripts/make_data.py --large out/large            # L = 100, 200, 500
@@ -26,6 +26,12 @@ data/demo.h5
 data/series/kp0417_chi{4,8,16,32}.h5
     The same run at bond dimensions 4, 8, 16 and 32 (attribute ``bond_dim``),
     for comparison and convergence studies.
+data/charges/{blocks,packed,labelled,dense}.h5
+    Run "KP-0733" of the same fictional group: an 8-site lattice gas holding
+    4 particles (a random particle-number-conserving MPS, `blockdata`), once
+    in each block-sparse form bondscope reads and once dense; profile any of
+    them with ``bondscope profile FILE`` (the block-sparse ones carry their
+    local charges) or ``--charges 0,1``.
 tests/fixtures/*.h5
     Tiny files in several layouts, listed in `FIXTURES`. All but the AKLT file
     hold the exact ground state of the open 6-site critical Ising chain (exact
@@ -251,7 +257,7 @@ def make_fixtures(fixture_dir):
 def main(argv=None):
     """Command line: see the module docstring."""
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--only", choices=("demo", "series", "fixtures"))
+    parser.add_argument("--only", choices=("demo", "series", "fixtures", "charges"))
     parser.add_argument("--large", metavar="DIR", help="write large checkpoints to DIR")
     parser.add_argument("--sizes", type=int, nargs="+", default=list(LARGE_SIZES),
                         help="chain lengths for --large")
@@ -267,6 +273,10 @@ def main(argv=None):
         make_series(data_dir, runs)
     if args.only in (None, "fixtures"):
         make_fixtures(ROOT / "tests" / "fixtures")
+    if args.only in (None, "charges"):
+        import blockdata
+
+        blockdata.example_files(data_dir / "charges", run="KP-0733")
 
 
 if __name__ == "__main__":
