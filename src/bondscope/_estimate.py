@@ -115,8 +115,14 @@ def _flop_rate():
     return _RATE[0]
 
 
-def estimate(src, route=None, truncating=False):
+def estimate(src, route=None, truncating=False, charges=False):
     """Memory and work of profiling ``src`` (a ChainSource or AmplitudeSource).
+
+    With ``charges`` (or a block-sparse source) the charge-resolved routes'
+    costs: :func:`bondscope._kernels.sectors.block_estimate` for block
+    sources; for dense MPS the any-gauge charge sweep's (the worst case; a
+    dense chain found to be block structured costs less); state vectors as
+    the svd route (one block of each cut at a time).
 
     Notes
     -----
@@ -139,6 +145,11 @@ def estimate(src, route=None, truncating=False):
     item = np.dtype(src.compute_dtype).itemsize
     stored = np.dtype(src.dtype).itemsize
     cplx = 4.0 if np.dtype(src.compute_dtype).kind == "c" else 1.0
+    if hasattr(src, "bond_sectors"):
+        from ._kernels.sectors import block_estimate
+
+        memory, flops, detail = block_estimate(src)
+        return Estimate(memory, flops * cplx, detail)
     if src.kind == "mps":
         shapes = src.shapes
         tensor = max(prod(s) for s in shapes) * item
@@ -149,6 +160,11 @@ def estimate(src, route=None, truncating=False):
         flops = sum(2 * 2 * s[0] * s[1] * s[2] * (s[0] + s[2]) for s in shapes)
         flops += sum(10 * s[2] ** 3 for s in shapes[:-1])
         flops *= 2 if truncating else 1
+        if charges:
+            from ._kernels.sectors import CHARGE_SWEEP_TENSORS, CHARGE_SWEEP_WORK
+
+            memory += CHARGE_SWEEP_TENSORS * tensor
+            flops *= CHARGE_SWEEP_WORK
         detail = {"largest_tensor_bytes": tensor, "bond_matrix_bytes": bond}
     else:
         dims = src.local_dims
@@ -163,7 +179,7 @@ def estimate(src, route=None, truncating=False):
         # NaN/Inf check's boolean mask
         read = state + (total * stored if stored != item else 0) + total
         work = 128 * best * item        # LAPACK workspace and the values, O(n)
-        if route == "gram":
+        if route == "gram" and not charges:
             lefts, rights = gram_matrix_sizes(dims)
             rest = sorted(lefts[1:2] + rights[:1], reverse=True)
             second = rest[0] if rest else 0

@@ -178,8 +178,8 @@ def profile(source, options=None, *, progress=False, **kwargs):
     opts = ProfileOptions.from_kwargs(options, **kwargs)
     with open_any(source, opts) as src:
         route = _route(src, opts)
-        check_memory(estimate(src, route, opts.truncating), opts.max_memory)
         charged = opts.charges is not None or hasattr(src, "blocks")
+        check_memory(estimate(src, route, opts.truncating, charged), opts.max_memory)
         kernel, steps = (CHARGE_KERNELS if charged else KERNELS)[src.kind]
         if route is not None:
             opts = opts.replace(route=route)
@@ -274,6 +274,7 @@ def inspect(source, options=None, **kwargs):
             info["site_labels"] = [src.labels[0], src.labels[-1]]
         if route is not None:
             info["route"] = route
-        info["estimate"] = estimate(src, route, opts.truncating).to_dict()
+        info["estimate"] = estimate(src, route, opts.truncating,
+                                    opts.charges is not None).to_dict()
         info["available_memory"] = available_memory()
     return info

@@ -16,7 +16,7 @@ def add_arguments(p):
     p.add_argument("--degeneracy-tol", metavar="TOL", type=float, default=1e-6,
                    help="levels closer than TOL (nats) count as degenerate (default 1e-6)")
     p.add_argument("--json", action="store_true", help="print the result as JSON")
-    add_flags(p, *LAYOUT_FLAGS, "route", "precision", *RESOURCE_FLAGS)
+    add_flags(p, *LAYOUT_FLAGS, "route", "precision", "charges", "modulus", *RESOURCE_FLAGS)
 
 
 def run(args):

@@ -37,7 +37,8 @@ from .._errors import CheckpointError
 from .._measure import resolution_floor, spectrum_measures
 from .blocksweep import charge_groups
 
-__all__ = ["SectorResult", "charge_spectra", "sector_measures", "leak_tolerance"]
+__all__ = ["SectorResult", "charge_spectra", "sector_measures", "leak_tolerance",
+           "sector_document", "block_estimate", "CHARGE_SWEEP_WORK"]
 
 # A state whose weight outside its dominant total charge is at most this many
 # eps of its stored precision counts as an eigenstate (as the norm check does).
@@ -45,6 +46,15 @@ _LEAK_EPS_UNITS = 100
 # The sweeps keep the bond matrices of this many bonds in memory (and spill the rest),
 # up to the store's byte budget: block-sparse bonds are small, so they spill sooner.
 _KEEP_BONDS = 16
+# Work of the any-gauge charge sweep relative to the plain sweeps (measured: 4.2x,
+# scripts/bench_sectors.py --charge-sweep), and its extra tensor-sized arrays
+# (the QR's isometry, its rotation, the label mask).
+CHARGE_SWEEP_WORK = 4.5
+CHARGE_SWEEP_TENSORS = 3
+# Memory of the block-wise sweeps beyond their arrays: the sector threads' BLAS
+# buffers and interpreter state (measured: the estimate's shortfall against the peak
+# of scripts/bench_sectors.py at L = 64, chi = 1024).
+_BLOCK_OVERHEAD = 8 * 2**20
 
 
 class SectorResult:
@@ -202,6 +212,46 @@ def _store_budget(src):
     else:
         largest = max(src.bond_dims) ** 2
     return min(STORE_BYTES, _KEEP_BONDS * largest * src.compute_dtype.itemsize)
+
+
+def block_estimate(src):
+    """(memory bytes, flops, detail) of the block-wise sweeps of a block source.
+
+    Per site: its blocks as stored and as computed, and for each of the
+    (two) sectors in flight its stacked matrix; the bond store's resident
+    part; work 2 * 2 rows_q chi_q^2 per sector, site and sweep plus 10 chi_q^3
+    per sector and cut; a fixed allowance for the sector threads' BLAS
+    buffers.
+    """
+    from .store import resident_bytes
+
+    item = np.dtype(src.compute_dtype).itemsize
+    stored = np.dtype(src.dtype).itemsize
+    site_bytes, sector_bytes, flops, bond_bytes = 0, 0, 0.0, []
+    for i in range(src.sites):
+        left, right = src.bond_sectors[i], src.bond_sectors[i + 1]
+        counts = {}
+        for row in src.charges.sites[i]:
+            counts[src.charges.key(row)] = counts.get(src.charges.key(row), 0) + 1
+        rows = {}
+        entries = 0
+        for ql, k in left.items():
+            for qp, d in counts.items():
+                qr = src.charges.key(src.charges.add(ql, qp))
+                if qr in right:
+                    entries += k * d * right[qr]
+                    rows[qr] = rows.get(qr, 0) + k * d
+        site_bytes = max(site_bytes, entries * (item + stored))
+        for qr, m in rows.items():
+            c = right[qr]
+            sector_bytes = max(sector_bytes, m * c * item)
+            flops += 2 * 2 * m * c * c + 10 * c ** 3
+        if i < src.sites - 1:
+            bond_bytes.append(sum(d * d for d in right.values()) * item)
+    store = resident_bytes(bond_bytes, _store_budget(src))
+    memory = 2 * site_bytes + 2 * 2 * sector_bytes + store + _BLOCK_OVERHEAD
+    return memory, flops, {"largest_site_blocks_bytes": site_bytes,
+                           "largest_sector_matrix_bytes": sector_bytes}
 
 
 def chain_sectors(src, charges, *, scratch=None, leak_tol=None, tick=None, route="auto"):
