@@ -210,6 +210,8 @@ def test_random_symmetric(case, dtype, gauge, route):
     if route:
         assert result.route == route
     assert result.total_charge == tuple(total)
+    if gauge != "state":
+        psi = contract(tensors)              # the state as stored, rounding included
     # brute force: eigenvalues of rho_A projected on each left charge (numpy eigvalsh,
     # which resolves weights lambda^2 down to about eps * chi)
     brute = ref.brute_sectors(psi, [table] * n, moduli)

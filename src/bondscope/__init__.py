@@ -35,6 +35,7 @@ fit_scaling          -- central charge, constant and scaling law (Calabrese-Card
 bond_budget          -- smallest bond dimension per cut for an error target, and its cost
 compare_profiles     -- per-cut differences, convergence and extrapolation over runs
 spectrum_diagnostics -- entanglement gap and degeneracy pattern per cut
+charge_equipartition -- sector entropies S(q) of a critical chain against equipartition
 
 Errors
 ------
@@ -73,6 +74,7 @@ _LAZY = {
     "bond_budget": "bondscope._analyses.budget",
     "compare_profiles": "bondscope._analyses.comparison",
     "spectrum_diagnostics": "bondscope._analyses.diagnostics",
+    "charge_equipartition": "bondscope._analyses.equipartition",
 }
 
 __all__ = ["CheckpointError", "MemoryLimitError", "__version__", *_LAZY]

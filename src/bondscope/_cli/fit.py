@@ -26,8 +26,10 @@ def run(args):
     prof = read_input(args.file, args, **overrides)
     res = fit_scaling(prof, **fit_options(args), local_dim=args.local_dim,
                       spectrum_report=args.spectrum_report, degeneracy_tol=args.degeneracy_tol)
+    equipartition = _equipartition(prof, args)
     if args.json:
-        print_json(res)
+        print_json(res if equipartition is None else
+                   {**res.to_dict(), "equipartition": equipartition.to_dict()})
         return 0
     a, b = res["window"]
     parts = res["error_parts"]
@@ -49,4 +51,15 @@ def run(args):
             gap = "-" if c["entanglement_gap"] is None else f"{c['entanglement_gap']:.4g}"
             print(f"  cut {c['position']:>4}  gap {gap:>10}  degeneracies "
                   f"{' '.join(map(str, c['degeneracies']))}")
+    if equipartition is not None:
+        print(f"equipartition   {equipartition.verdict}: {equipartition.reason}")
     return 0
+
+
+def _equipartition(prof, args):
+    """The sector-entropy report when the profile carries charge sectors (else None)."""
+    if not prof.cuts or "sectors" not in prof.cuts[0]:
+        return None
+    from .._analyses.equipartition import charge_equipartition
+
+    return charge_equipartition(prof, window=args.window)

@@ -1,68 +1,72 @@
 """Charge-resolved spectra of a dense MPS in any gauge.
 
-The right-to-left LQ sweep is the plain one.  The left-to-right QR sweep
-also carries the left block's charge: at every cut it keeps an orthonormal
-basis of the left block's span whose vectors are eigenvectors of the charge,
-each labelled with its charge.  Site i's product basis (basis vector x local
-state) is then labelled by the sum of the labels; after the QR M = P R of the
-next bond matrix, the compressed label operator X = P^H diag(labels) P is
-diagonalised, R is rotated into X's eigenbasis and each row gets the charge
-of its eigenvalue.  The cut's bond matrix B = R L is block diagonal by these
-labels, and its rows grouped by charge give the sector spectra.
+The right-to-left LQ sweep is the plain one (bond matrices L_i with
+psi = [A_0 ... A_{i-1}] L_i Q_i, Q_i an isometry).  The left-to-right sweep
+carries an orthonormal basis of the left block in which every vector has a
+definite charge, its label.  At site i the product basis (basis vector x local
+state) is labelled by the sums of the labels, exactly; the state at cut i+1 is
+B = M L_{i+1} with M = R_i A_i in that basis, so the rows of B with label q
+are the sector q block of the state's matrix, and their singular values are
+the sector spectra -- exact in any gauge, since the product basis is
+orthonormal and charge-definite by construction and L_{i+1} Q_{i+1} is the
+right block.  The left singular vectors of each sector block, kept where
+their singular value is above eps * n * s_max (the rest is rounding), are the
+next basis, with R_{i+1} = U_q^H M_q stacked over the sectors.
 
-Why it is exact in any gauge: the support S of the left reduced density
-matrix lies in the span of P and, for an eigenstate of the total charge, is
-invariant under the left charge, so X acts on S as the charge itself and S
-reduces X; directions of the span outside S (a redundant bond basis) carry
-no weight, whatever X does there, and S at the next cut lies in S x (site).
-Charges enter X through their rank among the labels present (0..K-1), so
-X's eigenvalues on S are integers 0..K-1 separated by 1 and its
-eigenvectors are accurate to about eps K.  Z_M charges are labels modulo M,
-which the same construction handles, as it does several quantities at once.
-
-How well a basis vector u_j is labelled is measured by its weight delta_j
-on product-basis rows of another label; the cut's mislabelled weight is
-bounded by (sum_j sqrt(delta_j w_j))^2 with w_j the weight of row j of B.
-At the last site, the state's weights grouped by label give its total
-charge distribution.
+For an eigenstate of the total charge the kept vectors number at most the
+bond dimension (the sectors' row spaces are orthogonal); a state that is not
+one is caught at the last site, where the state's weights in the labelled
+basis give its total charge distribution.  The kept vectors are capped at
+the bond dimension, largest values first, so memory stays bounded; the
+weight dropped (rounding for an eigenstate) is returned.
 """
 
 import numpy as np
 
+from .blocksweep import charge_groups
 from .chain import lq_step
-from .linalg import svdvals
 
 __all__ = ["labelled_chain"]
 
 
-def _label_step(r, labels, a, site, charges):
-    """One labelled QR step: (R_{i+1} rotated into the charge eigenbasis, its labels, delta).
+def _sector_svd(b):
+    from scipy.linalg import svd
 
-    ``r`` (k, chi_i) with ``labels`` (k, n_q); ``a`` (chi_i, d, chi_{i+1}).
-    """
-    from scipy.linalg import eigh, qr
+    u, s, _ = svd(b, full_matrices=False, overwrite_a=True, check_finite=False,
+                  lapack_driver="gesdd")
+    return u, s
 
+
+def _label_step(r, labels, a, site, env, charges):
+    """One step: the cut's sector values, the next (R, labels) and the dropped weight."""
     k, (_, d, c) = r.shape[0], a.shape
     m = (r @ a.reshape(a.shape[0], -1)).reshape(k * d, c)
     rows = charges.add(labels[:, None, :], site[None, :, :]).reshape(k * d, -1)
-    keys, code = np.unique(rows, axis=0, return_inverse=True)
-    code = code.reshape(-1)
-    p, rn = qr(m, mode="economic", overwrite_a=True, check_finite=False)
-    x = p.conj().T @ (code[:, None] * p)
-    e, w = eigh(x, overwrite_a=True, check_finite=False)
-    label = np.clip(np.rint(e), 0, len(keys) - 1).astype(np.int64)
-    u = p @ w
-    stray = np.einsum("rj,rj->j", u.conj(), u * (code[:, None] != label[None, :])).real
-    return w.conj().T @ rn, keys[label], stray
-
-
-def _sectors(b, labels):
-    """Raw singular values of the rows of ``b`` grouped by label: list of (key, values)."""
-    keys, code = np.unique(labels, axis=0, return_inverse=True)
-    code = code.reshape(-1)
-    return [(tuple(int(v) for v in key),
-             svdvals(b[code == j]))
-            for j, key in enumerate(keys)]
+    b = m @ env
+    parts = [(q, idx, *_sector_svd(b[idx])) for q, idx in charge_groups(rows).items()]
+    values = [s for *_, s in parts]
+    total = sum(float(s @ s) for s in values)
+    # rounding of the product M L is bounded by eps ||M|| ||L||, which in a gauge far from
+    # canonical exceeds eps ||B||: values below eps n ||M|| ||L|| are rounding, not kept
+    gauge = max(float(np.linalg.norm(m) * np.linalg.norm(env) / np.sqrt(total)), 1.0) \
+        if total > 0 else 1.0
+    top = max((float(s[0]) for s in values if s.size), default=0.0)
+    floor = np.finfo(b.dtype).eps * max(b.shape) * top * gauge
+    kept = sorted(((float(x), j, n) for j, (*_, s) in enumerate(parts)
+                   for n, x in enumerate(s) if x > floor), reverse=True)[:c]
+    take = {}
+    for _, j, n in kept:
+        take.setdefault(j, []).append(n)
+    dropped = total - sum(x * x for x, _, _ in kept)
+    blocks, new_labels = [], []
+    for j, cols in sorted(take.items()):
+        q, idx, u, _ = parts[j]
+        blocks.append(u[:, sorted(cols)].conj().T @ m[idx])
+        new_labels += [q] * len(cols)
+    r = np.vstack(blocks) if blocks else np.zeros((0, c), dtype=m.dtype)
+    labels = np.array(new_labels, dtype=np.int64).reshape(-1, charges.quantities)
+    cut = [(q, s) for (q, *_), s in zip(parts, values)]
+    return cut, r, labels, (max(dropped, 0.0) / total if total > 0 else 0.0), gauge
 
 
 def labelled_chain(src, charges, store, tick):
@@ -84,28 +88,29 @@ def labelled_chain(src, charges, store, tick):
     cuts : list of list of (key, ndarray)
         Per cut (position 1..N-1), the raw singular values of each left-block
         charge sector.
-    mislabelled : list of float
-        Per cut, the bound on the relative weight whose charge label is not
-        exact (about eps^2 for an eigenstate of the total charge).
+    dropped : float
+        Largest relative weight dropped at one cut (rounding-level for an
+        eigenstate of the total charge).
+    gauges : list of float
+        Per cut, ||M||_F ||L||_F / ||B||_F (>= 1): the rounding of the cut's
+        products is at most eps * n * this (relative), n the matrix size.
     totals : dict
         Weight of the state per total charge (keys), from the last site.
 
     Notes
     -----
-    Per site, besides the plain sweeps (O(d chi^3)): the isometry of the QR,
-    the compressed label operator and its Hermitian eigenproblem, a rotation
-    of R and the products with the isometry: O(d chi^3) more, about four
-    times the work of the plain sweeps.  Memory: one site tensor, its product
-    with R and the isometry (O(d chi^2) each); the bond matrices wait in
-    ``store``, so the peak does not grow with N.
+    Per site, besides the right-to-left sweep: the product R_i A_i, its
+    product with L_{i+1}, one SVD with left vectors per sector block and the
+    projection of R onto the kept vectors: O(d chi^3) work, measured at about
+    four times the plain profile's (scripts/bench_sectors.py
+    ``--charge-sweep``).  Memory: one site tensor and three arrays of its
+    size; the bond matrices wait in ``store``, so the peak does not grow with N.
 
     References
     ----------
-    G. Vidal, Phys. Rev. Lett. 91, 147902 (2003) -- Schmidt values along a
-    chain from successive factorisations.  The charge of the left block is a
-    sum of one-site operators, so its compression onto the sweep's basis
-    obeys the same recursion as the basis (common practice for local
-    operators in MPS algorithms).
+    G. Vidal, Phys. Rev. Lett. 91, 147902 (2003) -- Schmidt decompositions
+    along a chain from successive factorisations; here each factorisation is
+    split by the (exactly known) charge of the product basis.
     """
     n = src.sites
     env = np.ones((1, 1), dtype=src.compute_dtype)
@@ -115,15 +120,13 @@ def labelled_chain(src, charges, store, tick):
         tick()
     r = np.ones((1, 1), dtype=src.compute_dtype)
     labels = np.zeros((1, charges.quantities), dtype=np.int64)
-    cuts, mislabelled = [], []
+    cuts, dropped, gauges = [], 0.0, []
     for i in range(n - 1):
-        r, labels, delta = _label_step(r, labels, src.tensor(i), charges.sites[i], charges)
-        b = r @ store.pop(f"L{i + 1}")
-        w = np.einsum("ij,ij->i", b.conj(), b).real
-        total = w.sum()
-        mislabelled.append(float(np.sum(np.sqrt(delta * w)) ** 2 / total) if total > 0
-                           else 0.0)
-        cuts.append(_sectors(b, labels))
+        cut, r, labels, lost, gauge = _label_step(r, labels, src.tensor(i), charges.sites[i],
+                                                  store.pop(f"L{i + 1}"), charges)
+        cuts.append(cut)
+        gauges.append(gauge)
+        dropped = max(dropped, lost)
         tick()
     a = src.tensor(n - 1)
     m = (r @ a.reshape(a.shape[0], -1)).reshape(-1)
@@ -134,4 +137,4 @@ def labelled_chain(src, charges, store, tick):
     for row, wt in zip(map(tuple, rows.tolist()), weights):
         totals[row] = totals.get(row, 0.0) + float(wt)
     tick()
-    return cuts, mislabelled, totals
+    return cuts, dropped, gauges, totals
