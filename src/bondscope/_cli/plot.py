@@ -3,7 +3,7 @@
 from ._common import (FIT_FLAGS, LAYOUT_FLAGS, UsageError, add_flags, fit_options,
                       profile_options)
 
-HELP = "draw a figure of profiles: entropy, spectrum, budget, heatmap, convergence, ..."
+HELP = "draw a figure of profiles: entropy, spectrum, budget, heatmap, convergence, sectors, ..."
 ORDER = 40
 
 
@@ -33,6 +33,8 @@ FIGURE_FLAGS = {
                                              "degenerate (default 1e-6)")),
     "max_level": (("--max-level",), dict(metavar="XI", type=float,
                                          help="spectrum: upper limit of the level axis")),
+    "cut": (("--cut",), dict(metavar="L", type=int,
+                             help="sectors: the cut whose spectrum is drawn (default middle)")),
     "title": (("--title",), dict(help="figure title ('' for none)")),
 }
 
