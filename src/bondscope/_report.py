@@ -4,8 +4,9 @@ The page holds the batch's summary table (sortable by clicking a column
 heading) with each checkpoint's central charge and scaling law, the failed
 checkpoints with their errors, the notes and warnings of each checkpoint, and
 for each series its entropy, spectrum and convergence (or, for a time series,
-heatmap) figures; a checkpoint outside every series gets its own entropy and
-spectrum figures.  Figures are inlined as base64 PNG; the style sheet and the
+heatmap) figures, and, when the profiles carry charge sectors, the entropy
+split and the spectrum by charge sector; a checkpoint outside every series
+gets its own entropy and spectrum figures.  Figures are inlined as base64 PNG; the style sheet and the
 few lines of sorting script are inline too, so the file opens offline,
 anywhere, and nothing is fetched from the network.
 
@@ -270,6 +271,7 @@ def _section_html(anchor, heading, members, boundary, fit):
              _figure_html("entropy", members, entropy, f"entropy of {heading}",
                           boundary=boundary, fit=fit, title=""),
              _spectrum_html(members[-1])]
+    parts += _charge_figures(members[-1])
     if timed:
         parts.append(_figure_html("heatmap", members, "Entropy S(l, t) through the series",
                                   f"entropy heatmap of {heading}", title=""))
@@ -282,6 +284,22 @@ def _section_html(anchor, heading, members, boundary, fit):
                                   ", extrapolated to zero", f"convergence of {heading}",
                                   against="weight" if weighed else "bond", title=""))
     return "\n".join(parts)
+
+
+def _charge_figures(last):
+    """The two charge figures of a profile with charge sectors (none without)."""
+    cuts = last.profile.cuts
+    if not cuts or "sectors" not in cuts[0]:
+        return []
+    parts = [_figure_html("entropysplit", [last],
+                          f"Number and configurational entropy of {last.label}",
+                          f"entropy split of {last.label}", title="")]
+    if all("schmidt_values" in sec for sec in cuts[len(cuts) // 2]["sectors"]):
+        parts.append(_figure_html("sectors", [last],
+                                  f"Entanglement spectrum of {last.label} at the middle cut, "
+                                  "by charge sector", f"sector spectrum of {last.label}",
+                                  title=""))
+    return parts
 
 
 def _counts(total, counts):

@@ -77,6 +77,8 @@ def measures(doc):
     cuts = doc.get("cuts", [])
     entropies = [c["entropy"] for c in cuts]
     middle = [c["entropy"] for c in cuts if c["position"] == doc["sites"] // 2]
+    split = [c["number_entropy"] for c in cuts
+             if c["position"] == doc["sites"] // 2 and "number_entropy" in c]
     bonds = [c["bond_dimension"] for c in cuts if "bond_dimension" in c]
     trunc = doc.get("truncation")
     weights = [c["discarded_weight"] for c in cuts if "discarded_weight" in c]
@@ -87,5 +89,7 @@ def measures(doc):
             "max_bond_dimension": max(bonds) if bonds else None,
             "max_discarded_weight": max(weights) if trunc and weights else None,
             "infidelity": trunc.get("infidelity") if trunc else None,
+            "total_charge": (doc.get("charges") or {}).get("total"),
+            "middle_number_entropy": split[0] if split else None,
             "wall_seconds": record.get("wall_seconds"),
             "warnings": "; ".join(record.get("warnings", []))}

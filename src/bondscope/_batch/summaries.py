@@ -17,7 +17,8 @@ SERIES_FORMAT = "bondscope-series"
 PROFILES = "profiles"
 COLUMNS = ("source", "status", "series", "time", "time_unit", "bond_dim", "kind", "sites",
            "max_entropy", "middle_entropy", "max_bond_dimension", "max_discarded_weight",
-           "infidelity", "wall_seconds", "profile", "key", "error", "warnings")
+           "infidelity", "total_charge", "middle_number_entropy", "wall_seconds", "profile",
+           "key", "error", "warnings")
 _EXIT_CAP = 100
 
 
