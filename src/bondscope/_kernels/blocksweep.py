@@ -25,7 +25,7 @@ from .linalg import r_factor, svdvals
 from .parallel import blas_threads
 
 __all__ = ["NotBlockStructured", "infer_left_charges", "split_blocks", "block_chain",
-           "dense_blocks", "charge_groups"]
+           "dense_blocks", "charge_groups", "sector_pool"]
 
 
 # Entries of a tensor examined at once when inferring bond charges (bounds the temporaries).
@@ -217,7 +217,7 @@ def _run(pool, task, groups):
 
 
 @contextmanager
-def _sector_pool():
+def sector_pool():
     """A map over sectors: one BLAS thread per sector, as many sectors at once as the BLAS
     had threads (small factorisations gain nothing from threads inside one call)."""
     from threadpoolctl import threadpool_limits
@@ -275,7 +275,7 @@ def block_chain(leftward, rightward, first, last, n, store, tick, dtype):
     -- block-sparse tensors of symmetric tensor networks.
     """
     env_keys = [None] * (n + 1)
-    with _sector_pool() as pool:
+    with sector_pool() as pool:
         env = None
         for i, blocks in leftward:
             if env is None:

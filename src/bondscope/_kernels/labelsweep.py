@@ -23,35 +23,45 @@ weight dropped (rounding for an eigenstate) is returned.
 
 import numpy as np
 
-from .blocksweep import charge_groups
+from .blocksweep import charge_groups, sector_pool
 from .chain import lq_step
+from .parallel import lanes
 
 __all__ = ["labelled_chain"]
 
 
-def _sector_svd(b):
+def _sector(task):
+    """One sector's rows of M = R_i A_i (from the basis rows whose label plus a local
+    charge is the sector's), its block B_q = M_q L, and B_q's SVD (U, s)."""
     from scipy.linalg import svd
 
-    u, s, _ = svd(b, full_matrices=False, overwrite_a=True, check_finite=False,
-                  lapack_driver="gesdd")
-    return u, s
+    pieces, env = task
+    m = np.vstack([r @ a for r, a in pieces])
+    u, s, _ = svd(m @ env, full_matrices=False, overwrite_a=True, check_finite=False)
+    return m, u, s
 
 
-def _label_step(r, labels, a, site, env, charges):
-    """One step: the cut's sector values, the next (R, labels) and the dropped weight."""
-    k, (_, d, c) = r.shape[0], a.shape
-    m = (r @ a.reshape(a.shape[0], -1)).reshape(k * d, c)
-    rows = charges.add(labels[:, None, :], site[None, :, :]).reshape(k * d, -1)
-    b = m @ env
-    parts = [(q, idx, *_sector_svd(b[idx])) for q, idx in charge_groups(rows).items()]
+def _label_step(pool, r, labels, a, site, env, charges):
+    """One step: the cut's sector values, the next (R, labels), the dropped weight and the
+    gauge factor ||M||_F ||L||_F / ||B||_F."""
+    c = a.shape[2]
+    tasks = {}
+    for qs, states in charge_groups(site).items():
+        for ql, rows in charge_groups(labels).items():
+            q = charges.key(charges.add(ql, qs))
+            tasks.setdefault(q, []).extend((r[rows], a[:, s, :]) for s in states)
+    keys = sorted(tasks)
+    parts = [(q, *out) for q, out in zip(keys, pool(_sector, [(tasks[q], env) for q in keys]))]
     values = [s for *_, s in parts]
     total = sum(float(s @ s) for s in values)
     # rounding of the product M L is bounded by eps ||M|| ||L||, which in a gauge far from
     # canonical exceeds eps ||B||: values below eps n ||M|| ||L|| are rounding, not kept
-    gauge = max(float(np.linalg.norm(m) * np.linalg.norm(env) / np.sqrt(total)), 1.0) \
-        if total > 0 else 1.0
+    norm_m = np.sqrt(sum(float(np.vdot(m, m).real) for _, m, _, _ in parts))
+    gauge = max(norm_m * float(np.linalg.norm(env)) / np.sqrt(total), 1.0) if total > 0 \
+        else 1.0
     top = max((float(s[0]) for s in values if s.size), default=0.0)
-    floor = np.finfo(b.dtype).eps * max(b.shape) * top * gauge
+    size = max(r.shape[0] * a.shape[1], c)
+    floor = np.finfo(env.dtype).eps * size * top * gauge
     kept = sorted(((float(x), j, n) for j, (*_, s) in enumerate(parts)
                    for n, x in enumerate(s) if x > floor), reverse=True)[:c]
     take = {}
@@ -60,10 +70,10 @@ def _label_step(r, labels, a, site, env, charges):
     dropped = total - sum(x * x for x, _, _ in kept)
     blocks, new_labels = [], []
     for j, cols in sorted(take.items()):
-        q, idx, u, _ = parts[j]
-        blocks.append(u[:, sorted(cols)].conj().T @ m[idx])
+        q, m, u, _ = parts[j]
+        blocks.append(u[:, sorted(cols)].conj().T @ m)
         new_labels += [q] * len(cols)
-    r = np.vstack(blocks) if blocks else np.zeros((0, c), dtype=m.dtype)
+    r = np.vstack(blocks) if blocks else np.zeros((0, c), dtype=env.dtype)
     labels = np.array(new_labels, dtype=np.int64).reshape(-1, charges.quantities)
     cut = [(q, s) for (q, *_), s in zip(parts, values)]
     return cut, r, labels, (max(dropped, 0.0) / total if total > 0 else 0.0), gauge
@@ -99,11 +109,13 @@ def labelled_chain(src, charges, store, tick):
 
     Notes
     -----
-    Per site, besides the right-to-left sweep: the product R_i A_i, its
-    product with L_{i+1}, one SVD with left vectors per sector block and the
-    projection of R onto the kept vectors: O(d chi^3) work, measured at about
-    four times the plain profile's (scripts/bench_sectors.py
-    ``--charge-sweep``).  Memory: one site tensor and three arrays of its
+    Per site, besides the right-to-left sweep, per sector q: its rows of
+    R_i A_i, their product with L_{i+1}, one SVD with left vectors and the
+    projection onto the kept vectors: O(d chi^3) work in all.  The sectors
+    run side by side, one BLAS thread each (as in the block-wise sweep); the
+    right-to-left sweep gets the BLAS threads the plain engine gives each of
+    its two concurrent sweeps (half of them, from two up), which on a machine
+    shared with other work avoids BLAS threads waiting for busy cores.  Memory: one site tensor and three arrays of its
     size; the bond matrices wait in ``store``, so the peak does not grow with N.
 
     References
@@ -114,20 +126,23 @@ def labelled_chain(src, charges, store, tick):
     """
     n = src.sites
     env = np.ones((1, 1), dtype=src.compute_dtype)
-    for i in range(n - 1, 0, -1):
-        env = lq_step(src.tensor(i), env)
-        store.put(f"L{i}", env)
-        tick()
+    with lanes():                   # the plain engine's threads per sweep (half, from 2 up)
+        for i in range(n - 1, 0, -1):
+            env = lq_step(src.tensor(i), env)
+            store.put(f"L{i}", env)
+            tick()
     r = np.ones((1, 1), dtype=src.compute_dtype)
     labels = np.zeros((1, charges.quantities), dtype=np.int64)
     cuts, dropped, gauges = [], 0.0, []
-    for i in range(n - 1):
-        cut, r, labels, lost, gauge = _label_step(r, labels, src.tensor(i), charges.sites[i],
-                                                  store.pop(f"L{i + 1}"), charges)
-        cuts.append(cut)
-        gauges.append(gauge)
-        dropped = max(dropped, lost)
-        tick()
+    with sector_pool() as pool:
+        for i in range(n - 1):
+            cut, r, labels, lost, gauge = _label_step(pool, r, labels, src.tensor(i),
+                                                      charges.sites[i],
+                                                      store.pop(f"L{i + 1}"), charges)
+            cuts.append(cut)
+            gauges.append(gauge)
+            dropped = max(dropped, lost)
+            tick()
     a = src.tensor(n - 1)
     m = (r @ a.reshape(a.shape[0], -1)).reshape(-1)
     rows = charges.add(labels[:, None, :], charges.sites[n - 1][None, :, :]).reshape(
