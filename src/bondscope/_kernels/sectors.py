@@ -46,10 +46,11 @@ _LEAK_EPS_UNITS = 100
 # The sweeps keep the bond matrices of this many bonds in memory (and spill the rest),
 # up to the store's byte budget: block-sparse bonds are small, so they spill sooner.
 _KEEP_BONDS = 16
-# Work of the any-gauge charge sweep relative to the plain sweeps (measured: 4.2x,
-# scripts/bench_sectors.py --charge-sweep), and its extra tensor-sized arrays
-# (the QR's isometry, its rotation, the label mask).
-CHARGE_SWEEP_WORK = 4.5
+# Work of the any-gauge charge sweep relative to the plain sweeps, counted: the plain
+# right-to-left sweep, and per site the product R A, its product with L (d chi^3 more),
+# one SVD with vectors per sector and the projection onto the kept vectors; and its
+# extra tensor-sized arrays (the sector rows of R A, their products with L, the vectors).
+CHARGE_SWEEP_WORK = 3.0
 CHARGE_SWEEP_TENSORS = 3
 # Memory of the block-wise sweeps beyond their arrays: the sector threads' BLAS
 # buffers and interpreter state (measured: the estimate's shortfall against the peak
