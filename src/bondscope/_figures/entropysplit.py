@@ -5,6 +5,7 @@ from .._errors import CheckpointError
 from .._options import ProfileOptions
 from .._text import entropy_unit
 from ._gather import collect
+from ._names import visible
 from ._style import COLOURS, MARKERS, cut_label, marker_size, new_figure, style
 
 __all__ = ["entropysplit_figure"]
@@ -45,15 +46,15 @@ def entropysplit_figure(sources, *, title=None, options=None, **profiling):
         for i, entry in enumerate(entries):
             prof = entry.profile
             if not prof.cuts or "number_entropy" not in prof.cuts[0]:
-                raise CheckpointError(f"{entry.label}: no charge sectors; profile with "
-                                      "--charges Q")
+                raise CheckpointError(f"{visible(entry.origin or entry.label)}: no charge "
+                                      "sectors; profile with --charges Q")
             x = [c["position"] for c in prof.cuts]
             size = marker_size(len(x))
             for field, label, dash in _CURVES:
                 ax.plot(x, [c[field] for c in prof.cuts], linestyle=dash,
                         color=COLOURS[i % 7], marker=MARKERS[i % len(MARKERS)],
                         markersize=size if field == "entropy" else 0,
-                        label=f"{label} ({entry.label})" if len(entries) > 1 else label)
+                        label=f"{label} ({entry.text})" if len(entries) > 1 else label)
         ax.set_ylabel(f"entropy ({entropy_unit(entries[0].profile.log_base)})")
         cut_label(ax)
         ax.legend(fontsize=8, frameon=False)

@@ -6,6 +6,7 @@ from .._docs import filled
 from .._errors import CheckpointError
 from .._options import ProfileOptions
 from ._gather import collect
+from ._names import visible
 from ._style import COLOURS, new_figure, style
 
 __all__ = ["sectors_figure"]
@@ -55,7 +56,7 @@ def sectors_figure(sources, *, cut=None, max_level=None, title=None, options=Non
         axes = np.atleast_1d(fig.subplots(1, len(entries), sharey=True, squeeze=False)[0])
         for i, (ax, entry) in enumerate(zip(axes, entries)):
             position = _panel(ax, entry, cut, COLOURS[i % 7])
-            ax.set_title(f"{entry.label}, cut {position}", fontweight="normal", fontsize=9)
+            ax.set_title(f"{entry.text}, cut {position}", fontweight="normal", fontsize=9)
             ax.set_xlabel("charge q of the left block")
         axes[0].set_ylabel("level ξ = −ln(p(q) λ²)")
         if max_level is not None:
@@ -75,8 +76,9 @@ def _panel(ax, entry, cut, colour):
         raise ValueError(f"cut {position} is not one of 1..{prof.sites - 1}")
     sectors = cuts[position].get("sectors")
     if sectors is None or any("schmidt_values" not in s for s in sectors):
-        raise CheckpointError(f"{entry.label}: cut {position} has no charge sectors with "
-                              "Schmidt values; profile with --charges Q --spectrum")
+        raise CheckpointError(f"{visible(entry.origin or entry.label)}: cut {position} has "
+                              "no charge sectors with Schmidt values; profile with "
+                              "--charges Q --spectrum")
     labels = [f"{_charge_text(s['charge'])}\np={s['probability']:.2g}" for s in sectors]
     for x, sec in enumerate(sectors):
         values = np.asarray(sec["schmidt_values"], dtype=float)
