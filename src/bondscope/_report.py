@@ -6,9 +6,9 @@ checkpoints with their errors, the notes and warnings of each checkpoint, and
 for each series its entropy, spectrum and convergence (or, for a time series,
 heatmap) figures, and, when the profiles carry charge sectors, the entropy
 split and the spectrum by charge sector; a checkpoint outside every series
-gets its own entropy and spectrum figures.  Figures are inlined as base64 PNG; the style sheet and the
-few lines of sorting script are inline too, so the file opens offline,
-anywhere, and nothing is fetched from the network.
+gets its own entropy and spectrum figures.  Figures are inlined as base64
+PNG; the style sheet and the few lines of sorting script are inline too, so
+the file opens offline, anywhere, and nothing is fetched from the network.
 
 Names and messages come from other people's files: they are escaped for
 HTML, and invisible or reordering characters (a right-to-left override, a

@@ -115,8 +115,9 @@ def labelled_chain(src, charges, store, tick):
     run side by side, one BLAS thread each (as in the block-wise sweep); the
     right-to-left sweep gets the BLAS threads the plain engine gives each of
     its two concurrent sweeps (half of them, from two up), which on a machine
-    shared with other work avoids BLAS threads waiting for busy cores.  Memory: one site tensor and three arrays of its
-    size; the bond matrices wait in ``store``, so the peak does not grow with N.
+    shared with other work avoids BLAS threads waiting for busy cores.
+    Memory: one site tensor and three arrays of its size; the bond matrices
+    wait in ``store``, so the peak does not grow with N.
 
     References
     ----------
