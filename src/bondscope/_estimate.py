@@ -138,6 +138,11 @@ def estimate(src, route=None, truncating=False, charges=False):
     Truncation tracking adds three state-sized arrays (the normalised copy, the
     block being decomposed and its right singular vectors).  Checked against
     measured peaks by ``scripts/bench.py``.
+
+    Both add the source's ``read_buffer`` (HDF5 chunk decompression and (re, im)
+    combination, :mod:`bondscope._readcost`) to each read; the figure is the
+    estimate for one checkpoint, so ``detail["read_buffer_bytes"]`` and
+    ``memory`` are per checkpoint (a batch running W at once needs W times).
     """
     from ._kernels.amplitudes import gram_matrix_sizes
     from ._kernels.store import resident_bytes
@@ -165,7 +170,10 @@ def estimate(src, route=None, truncating=False, charges=False):
 
             memory += CHARGE_SWEEP_TENSORS * tensor
             flops *= CHARGE_SWEEP_WORK
-        detail = {"largest_tensor_bytes": tensor, "bond_matrix_bytes": bond}
+        buffer = getattr(src, "read_buffer", 0)
+        memory += 2 * buffer            # one read in flight per sweep
+        detail = {"largest_tensor_bytes": tensor, "bond_matrix_bytes": bond,
+                  "read_buffer_bytes": buffer}
     else:
         dims = src.local_dims
         total = prod(dims)
@@ -177,7 +185,8 @@ def estimate(src, route=None, truncating=False, charges=False):
             best = min(best, max(left, total // left))
         # the read: the amplitudes, the stored array while it is converted, and the
         # NaN/Inf check's boolean mask
-        read = state + (total * stored if stored != item else 0) + total
+        buffer = getattr(src, "read_buffer", 0)
+        read = state + (total * stored if stored != item else 0) + total + buffer
         work = 128 * best * item        # LAPACK workspace and the values, O(n)
         if route == "gram" and not charges:
             lefts, rights = gram_matrix_sizes(dims)
@@ -192,7 +201,8 @@ def estimate(src, route=None, truncating=False, charges=False):
         if truncating:
             memory += 3 * state
             flops += 4 * total * best
-        detail = {"state_bytes": state, "middle_matrix": [total // best, best]}
+        detail = {"state_bytes": state, "middle_matrix": [total // best, best],
+                  "read_buffer_bytes": buffer}
     return Estimate(memory, flops * cplx, detail)
 
 
