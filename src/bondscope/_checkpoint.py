@@ -347,8 +347,10 @@ def _pick(f, path, state, tensors, local_dim, axes, parts, precision):
         raise CheckpointError(f"{problem}; or name another layout with --state / --tensors"
                               if problem.startswith(str(f.filename)) else f"{path}: {problem}")
     if not cands:
+        forced = " (--complex-parts last-axis counts only real datasets with a last axis of " \
+            "length 2)" if parts == "last-axis" else ""
         raise CheckpointError(f"{path}: found no state-vector dataset and no chain of site "
-                              "tensors; name the layout with --state DATASET or "
+                              f"tensors{forced}; name the layout with --state DATASET or "
                               "--tensors PATTERN")
     if len(cands) > 1:
         raise CheckpointError(f"{path}: several layouts found: {_describe(cands)}; "

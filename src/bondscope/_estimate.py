@@ -219,6 +219,13 @@ def check_memory(est, max_memory=None):
     if limit is None:
         limit, what = available_memory(), "available memory"
     if limit is not None and est.memory > limit:
+        buffer = est.detail.get("read_buffer_bytes", 0)
+        if 2 * buffer >= est.memory:
+            raise MemoryLimitError(
+                f"profiling needs about {format_bytes(est.memory)} but {what} is "
+                f"{format_bytes(limit)}: {format_bytes(buffer)} of it for a chunk HDF5 "
+                "decompresses whole; rewrite the checkpoint with smaller chunks (h5repack "
+                "-l CHUNK=...) or raise --max-memory")
         raise MemoryLimitError(
             f"profiling needs about {format_bytes(est.memory)} but {what} is "
             f"{format_bytes(limit)}; free memory, raise --max-memory, use a machine with more "
