@@ -10,6 +10,7 @@ these rows.
 import json
 import math
 import os
+import re
 import socket
 import warnings
 from math import prod
@@ -57,6 +58,12 @@ def row(t):                       # (1, D)
     return _write(t / "c.h5", psi=psi.reshape(1, -1)), psi, [2] * QUBITS
 
 
+def snapshots(t):                 # two numbered columns: two layouts, not a chain
+    psi = _state()
+    return _write(t / "c.h5", **{"snap0/psi": psi.reshape(-1, 1),
+                                 "snap1/psi": psi.reshape(-1, 1)}), psi, [2] * QUBITS
+
+
 def pairs(t, shape=(-1, 2), dtype=np.float64):   # (re, im) in a last axis of length 2
     psi = _state(complex_=True)
     stored = np.stack([psi.real, psi.imag], -1).reshape(shape).astype(dtype)
@@ -81,6 +88,14 @@ def scaled_chain(factor):         # every site tensor times ``factor``
         tensors = _tensors()
         path = write_chain(t / "c.h5", [a * factor for a in tensors])
         return path, contract(tensors), CHAIN["dims"]
+    return write
+
+
+def single_chain(factor):         # float32 tensors times ``factor``
+    def write(t):
+        tensors = _tensors()
+        path = write_chain(t / "c.h5", [a * factor for a in tensors], dtype=np.float32)
+        return path, contract([a.astype(np.float32) for a in tensors]), CHAIN["dims"]
     return write
 
 
@@ -180,6 +195,8 @@ CASES = [
     (scaled_chain(1e150), {}, None),                               # MPS products overflow
     (scaled_chain(1e-150), {}, None),                              # ... underflow
     (scaled_chain(3.0), {}, None),                                 # ordinary scale: untouched
+    (single_chain(1e30), {"precision": "stored"}, None),           # float32 products overflow
+    (snapshots, {"state": "/snap1/psi"}, None),                    # numbered columns, named
     (permuted_chain(("phys", "left", "right")), {}, None),         # permuted, found
     (ambiguous_chain, {"axes": "phys,left,right"}, None),             # --axes honoured by detection
     (qutrits, {"local_dim": 3}, None),                             # qutrits with the flag
@@ -189,6 +206,7 @@ CASES = [
      (CE, "the bond between sites 4 and 5) (axes phys,left,right", 3)),  # blame the fault
     (permuted_chain(WORDS, bad_bond=4), {},
      (CE, "the bond between sites 4 and 5) (axes left,phys,right", 3)),  # default order too
+    (snapshots, {}, (CE, "several layouts found: state-vector /snap0/psi", 3)),
     (qutrits, {}, (CE, "729 = 3^6: set --local-dim 3", 3)),        # suggests the flag
     (qutrits, {"state": "psi"}, (CE, "729 = 3^6: set --local-dim 3", 3)),  # named, too
     (qutrits, {"local_dim": 0}, (VE, "must be an integer >= 2, found 0", 2)),  # --local-dim 0
@@ -285,6 +303,8 @@ def test_stored_norm_survives_rescaling(tmp_path, write, norm, exponent):
         prof = bondscope.profile(path)
     doc = prof.to_dict()
     json.dumps(doc, allow_nan=False)              # finite numbers only
+    prof.save(tmp_path / "p.json")
+    assert bondscope.load_profile(tmp_path / "p.json").to_dict() == doc
     if norm is not None:
         assert doc["norm"] == pytest.approx(norm, rel=1e-12)
     if exponent is None:
@@ -294,6 +314,26 @@ def test_stored_norm_survives_rescaling(tmp_path, write, norm, exponent):
         # log2 of the stored norm: 8 * log2(1e150) plus the unscaled chain's (common practice)
         assert doc["norm_exponent"] == exponent if exponent != "large" else \
             doc["norm_exponent"] > 8 * 498
+
+
+OPEN = [
+    # (open_source keywords, error, fragment): the loader's own boundary, without the CLI
+    ({"local_dim": 0}, ValueError, "local_dim (--local-dim) must be an integer >= 2"),
+    ({"local_dim": [3, 0, 3]}, ValueError, "must be an integer >= 1, found 0"),
+    ({"complex_parts": "both"}, ValueError, "complex_parts (--complex-parts) must be one of"),
+    ({"local_dim": 3}, None, None),                                # the good row
+]
+
+
+@pytest.mark.parametrize("keywords, error, fragment", OPEN)
+def test_open_source_checks_its_options(tmp_path, keywords, error, fragment):
+    path, _, _ = qutrits(tmp_path)
+    if error is None:
+        with bondscope.open_source(path, **keywords) as src:
+            assert src.local_dims == [3] * 6
+        return
+    with pytest.raises(error, match=re.escape(fragment)):
+        bondscope.open_source(path, **keywords)
 
 
 def test_chunk_buffer_in_the_estimate(tmp_path):

@@ -206,7 +206,8 @@ def scan(f, local_dim=None, axes=None, complex_parts="auto"):
     paths = _datasets(f)
     patterns, oversized = {}, {}
     for p in paths:
-        if f[p].ndim not in (2, 3):
+        shape = f[p].shape
+        if len(shape) not in (2, 3) or _column(shape):
             continue
         for m in _NUMBER.finditer(p):
             pat = p[:m.start()] + "{site}" + p[m.end():]
@@ -232,6 +233,11 @@ def scan(f, local_dim=None, axes=None, complex_parts="auto"):
             if cand is not None:
                 (broken if cand.problem else found).append(cand)
     return found, broken
+
+
+def _column(shape):
+    """A (D, 1) column or (1, D) row with D > 16: a vector, never an end tensor."""
+    return len(shape) == 2 and min(shape) == 1 and max(shape) > 16
 
 
 def _vector_candidate(d, p, local_dim, complex_parts):
