@@ -206,7 +206,7 @@ CASES = [
      (CE, "the bond between sites 4 and 5) (axes phys,left,right", 3)),  # blame the fault
     (permuted_chain(WORDS, bad_bond=4), {},
      (CE, "the bond between sites 4 and 5) (axes left,phys,right", 3)),  # default order too
-    (snapshots, {}, (CE, "several layouts found: state-vector /snap0/psi", 3)),
+    (snapshots, {}, (CE, "several layouts found: state-vector /snap0/psi", 3)),  # not a chain
     (qutrits, {}, (CE, "729 = 3^6: set --local-dim 3", 3)),        # suggests the flag
     (qutrits, {"state": "psi"}, (CE, "729 = 3^6: set --local-dim 3", 3)),  # named, too
     (qutrits, {"local_dim": 0}, (VE, "must be an integer >= 2, found 0", 2)),  # --local-dim 0
@@ -215,17 +215,22 @@ CASES = [
      (CE, "needs real numbers with a last axis of length 2", 3)),  # flag on complex data
     (scaled_state(1e170, complex_=True), {"complex_parts": "last-axis"},
      (CE, "counts only real datasets with a last axis of length 2", 3)),  # ... not named
-    (pairs, {"complex_parts": "sideways"}, (VE, "complex_parts (--complex-parts)", 2)),
+    (pairs, {"complex_parts": "sideways"},
+     (VE, "complex_parts (--complex-parts)", 2)),                 # unknown value
     (chunked(2 ** 22), {"max_memory": 16 * 2 ** 20},
-     (ML, "for a chunk HDF5 decompresses whole", 4)),                                # 32 MiB chunk, 16 numbers
-    (sites_far_apart(30_000_000), {}, (CE, "site 1 of /psi/T{site} is missing", 3)),
-    (sites_far_apart(99_999_999_999), {}, (CE, "with 99999999998 missing", 3)),
-    (long_site_number, {}, (CE, "site number of 5000 digits", 3)),
-    (long_site_number, {"tensors": "/psi/T{site}"}, (CE, "site number of 5000 digits", 3)),
+     (ML, "for a chunk HDF5 decompresses whole", 4)),             # 32 MiB chunk, 16 numbers
+    (sites_far_apart(30_000_000), {},
+     (CE, "site 1 of /psi/T{site} is missing", 3)),               # once 12 s and 3 GB
+    (sites_far_apart(99_999_999_999), {},
+     (CE, "with 99999999998 missing", 3)),                        # once a MemoryError
+    (long_site_number, {}, (CE, "site number of 5000 digits", 3)),  # found by the scan
+    (long_site_number, {"tensors": "/psi/T{site}"},
+     (CE, "site number of 5000 digits", 3)),                      # named with --tensors
     (zero_bond, {}, (CE, "has an axis of length 0", 3)),           # zero bond dimension
-    (empty_axis, {"state": "psi"}, (CE, "shaped (2, 0, 2), which holds no amplitudes", 3)),
-    (fifo, {}, (CE, "is a FIFO (named pipe), not a regular file", 3)),
-    (unix_socket, {}, (CE, "is a socket, not a regular file", 3)),
+    (empty_axis, {"state": "psi"},
+     (CE, "shaped (2, 0, 2), which holds no amplitudes", 3)),     # once ZeroDivisionError
+    (fifo, {}, (CE, "is a FIFO (named pipe), not a regular file", 3)),  # once hung for ever
+    (unix_socket, {}, (CE, "is a socket, not a regular file", 3)),   # refused before open
     (lambda t: (t, None, None), {}, (CE, "is a directory", 3)),    # a directory
     (rewritten, {}, (CE, "the file's groups could not be read", 3)),  # "Object visitation"
 ]

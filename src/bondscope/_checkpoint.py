@@ -105,7 +105,7 @@ def _reader(dset, dtype):
                 out.imag = dset.fields(im_name)[()]
                 return out
             return dset[()]
-        except OSError as exc:
+        except (OSError, RuntimeError) as exc:
             raise CheckpointError(f"{dset.file.filename}: dataset {where} cannot be read "
                                   f"({' '.join(str(exc).split())}); the file may be "
                                   "truncated or damaged") from None
@@ -326,7 +326,7 @@ def open_source(path, *, state=None, tensors=None, local_dim=None, axes=None,
     f = _open(path)
     try:
         src = _pick(f, Path(path), state, tensors, local_dim, axes, complex_parts, precision)
-    except (OSError, RuntimeError) as exc:
+    except (OSError, RuntimeError, KeyError) as exc:      # h5py's errors for a changing file
         f.close()
         raise unreadable_structure(f, exc) from None
     except BaseException:

@@ -129,7 +129,8 @@ def estimate(src, route=None, truncating=False, charges=False):
     MPS: two sweeps may run at once, each holding a site tensor as read (plus
     the stored copy when it is converted or transposed), its product with a
     bond matrix, and a few bond matrices; plus the in-memory part of the bond
-    store (at most its budget, ``_kernels.store.STORE_BYTES``); truncation tracking adds two tensor-sized blocks.
+    store (at most its budget, ``_kernels.store.STORE_BYTES``); truncation tracking adds
+    two tensor-sized blocks.
     Work sums d chi_l chi_r (chi_l + chi_r) per site and chi^3 per bond SVD.
     State vectors: the larger of the read (the amplitudes, plus the stored
     array while it is converted) and the computation.  gram holds the state,
