@@ -341,8 +341,10 @@ def test_open_source_checks_its_options(tmp_path, keywords, error, fragment):
         bondscope.open_source(path, **keywords)
 
 
-def test_chunk_buffer_in_the_estimate(tmp_path):
+def test_chunk_buffer_in_the_estimate(tmp_path, capsys):
     path, _, _ = chunked(2 ** 22)(tmp_path)
+    assert main(["inspect", str(path)]) == 0
+    assert "32.0 MiB per read for HDF5 chunks decompressed whole" in capsys.readouterr().out
     est = bondscope.inspect(path)["estimate"]
     assert est["detail"]["read_buffer_bytes"] == 2 ** 22 * 8   # one gzip chunk of float64
     assert est["memory_bytes"] > 2 ** 22 * 8
