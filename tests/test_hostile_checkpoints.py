@@ -367,3 +367,31 @@ def test_columns_cost_as_vectors(tmp_path, shape):
     info = bondscope.inspect(path)
     assert info["local_dims"] == [2] * QUBITS
     assert info["estimate"]["memory_bytes"] < 40 * prod(shape) * 8
+
+
+DEMO = os.path.join(os.path.dirname(__file__), os.pardir, "data", "series", "kp0417_chi16.h5")
+
+
+@pytest.mark.parametrize("factor, rescaled", [
+    (1e150, True),      # 64 tensors of a finite-chi ground state, each times 1e150
+    (1e-150, True),     # ... times 1e-150
+    (16.0, False),      # 2^4 per tensor: within range, left as stored
+    (1.0, False),       # the stored canonical form: never touched
+])
+def test_demo_ground_state_at_any_scale(tmp_path, factor, rescaled):
+    # Schmidt values do not depend on the state's scale (common practice): the
+    # scaled copies must give the stored file's entropies
+    reference = bondscope.profile(DEMO)
+    with h5py.File(DEMO) as f:
+        group = f["state"]
+        tensors = [group[f"site_{i}"][()] * factor for i in range(len(group))]
+    path = write_chain(tmp_path / "scaled.h5", tensors)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", bondscope.UnnormalisedStateWarning)
+        prof = bondscope.profile(path)
+    np.testing.assert_allclose(prof.entropies, reference.entropies, rtol=0, atol=1e-12)
+    assert ("norm_exponent" in prof.to_dict()) is rescaled     # 1e+-9600 is past the range
+    with bondscope.open_source(path) as src:
+        for i in range(src.sites):
+            src.tensor(i)
+        assert (src.scale_exponent != 0) is rescaled
