@@ -18,13 +18,37 @@ from ._errors import CheckpointError
 
 __all__ = ["atomic_write", "format_of", "SUFFIXES", "H5_GROUP", "json_default", "json_text",
            "csv_text", "write_h5_group", "read_h5_group", "is_profile_h5", "refuse_overwrite",
-           "write_document", "read_document"]
+           "write_document", "read_document", "csv_cell"]
 
 H5_GROUP = "bondscope_profile"
 _COLUMNS = ("position", "bond_dimension", "schmidt_rank", "entropy", "resolution_floor",
             "kept", "discarded_weight", "number_entropy", "configurational_entropy")
 _INT_COLUMNS = ("position", "bond_dimension", "schmidt_rank", "kept")
 SUFFIXES = {".json": "json", ".h5": "h5", ".hdf5": "h5", ".csv": "csv"}
+
+
+_FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
+
+
+def csv_cell(value):
+    """A CSV cell that no spreadsheet runs as a formula.
+
+    Text starting with ``=``, ``+``, ``-``, ``@``, tab or carriage return that is
+    not a number gets a leading ``'`` (the OWASP guidance on CSV injection);
+    numbers, and all other text, are written as they are.
+
+    Examples
+    --------
+    >>> csv_cell("=HYPERLINK(1)"), csv_cell("-0.25"), csv_cell("@x"), csv_cell(-1.5)
+    ("'=HYPERLINK(1)", '-0.25', "'@x", -1.5)
+    """
+    if not isinstance(value, str) or not value.startswith(_FORMULA_STARTS):
+        return value
+    try:
+        float(value)
+    except ValueError:
+        return "'" + value
+    return value
 
 
 def format_of(path):
@@ -100,7 +124,7 @@ def csv_text(doc):
         row += [cut.get(c, "") for c in cols[4:]]
         if spectra:
             row.append(" ".join(repr(float(v)) for v in cut["schmidt_values"]))
-        w.writerow(row)
+        w.writerow([csv_cell(v) for v in row])
     return buf.getvalue()
 
 

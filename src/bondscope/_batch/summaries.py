@@ -6,8 +6,8 @@ import json
 import os
 from pathlib import Path
 
-from .._files import atomic_write
-from .._errors import one_line
+from .._errors import EXIT_SOME_FAILED, one_line
+from .._files import atomic_write, csv_cell
 
 __all__ = ["BatchSummary", "COLUMNS", "PROFILES", "SUMMARY_FORMAT", "SERIES_FORMAT", "row",
            "write_summary", "write_series"]
@@ -19,7 +19,6 @@ COLUMNS = ("source", "status", "series", "time", "time_unit", "bond_dim", "kind"
            "max_entropy", "middle_entropy", "max_bond_dimension", "max_discarded_weight",
            "infidelity", "total_charge", "middle_number_entropy", "wall_seconds", "profile",
            "key", "error", "warnings")
-_EXIT_CAP = 100
 
 
 class BatchSummary:
@@ -56,8 +55,9 @@ class BatchSummary:
 
     @property
     def exit_status(self):
-        """The number of failed checkpoints, capped at 100 (0 when all went well)."""
-        return min(self.failed, _EXIT_CAP)
+        """0 when every checkpoint was profiled or skipped, else 5 (``EXIT_SOME_FAILED``);
+        the count of failures is :attr:`failed` and the summary's ``counts``."""
+        return EXIT_SOME_FAILED if self.failed else 0
 
     def __len__(self):
         return len(self.rows)
@@ -97,8 +97,8 @@ def write_summary(out, suffix, rows, inputs, shard, recorded, group_by):
     writer = csv.writer(buf, lineterminator="\n")
     writer.writerow(COLUMNS)
     for r in rows:
-        writer.writerow(["" if r[c] is None else (repr(r[c]) if isinstance(r[c], float)
-                                                  else r[c]) for c in COLUMNS])
+        writer.writerow([csv_cell("" if r[c] is None else (repr(r[c]) if isinstance(r[c], float)
+                                                           else r[c])) for c in COLUMNS])
     files = {"csv": out / f"summary{suffix}.csv", "json": out / f"summary{suffix}.json"}
     atomic_write(files["csv"], lambda tmp: Path(tmp).write_text(buf.getvalue(), "utf-8"))
     atomic_write(files["json"], lambda tmp: Path(tmp).write_text(text, "utf-8"))

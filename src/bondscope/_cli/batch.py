@@ -39,6 +39,7 @@ def add_arguments(p):
 
 def run(args):
     from .._batch.run import run_batch
+    from .._text import visible
 
     summary = run_batch(args.inputs, args.out, workers=args.workers, scheduler=args.scheduler,
                         shard=args.shard, force=args.force, group_attr=args.group_attr,
@@ -46,7 +47,8 @@ def run(args):
                         options=profile_options(args))
     for row in summary.rows:
         if row["status"] == "failed":
-            print(f"failed: {row['source']}: {row['error']}", file=sys.stderr)
+            print(f"failed: {visible(row['source'])}: {visible(row['error'])}",
+                  file=sys.stderr)
     print(f"{len(summary)} checkpoints: {summary.done} done, {summary.skipped} skipped, "
-          f"{summary.failed} failed; summary in {summary.files['csv']}")
+          f"{summary.failed} failed; summary in {visible(summary.files['csv'])}")
     return summary.exit_status

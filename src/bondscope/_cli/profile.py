@@ -19,7 +19,7 @@ def add_arguments(p):
 
 def run(args):
     from .._pipeline import profile
-    from .._text import profile_table
+    from .._text import profile_table, visible
     from ._warnings import quiet_warnings
 
     with quiet_warnings(args.quiet):
@@ -31,5 +31,5 @@ def run(args):
     else:
         print(profile_table(prof))
         if args.output:
-            print(f"profile written to {args.output}")
+            print(f"profile written to {visible(args.output)}")
     return 0
