@@ -11,8 +11,7 @@ import os
 
 from .._runinfo import file_attributes
 
-__all__ = ["RECORD_VERSION", "ROW_ATTRS", "fingerprint", "resumed", "remove_leftovers",
-           "measures"]
+__all__ = ["RECORD_VERSION", "ROW_ATTRS", "fingerprint", "resumed", "measures"]
 
 RECORD_VERSION = 1
 # root attributes copied into each result and its summary row
@@ -61,16 +60,6 @@ def resumed(plan, recorded, group_attr):
     if stamp["metadata"] is None or record.get("fingerprint") != stamp:
         return None
     return {"key": plan["key"], "status": "skipped", "attrs": attrs, **measures(doc)}
-
-
-def remove_leftovers(directory, keys):
-    """Delete temporary files of interrupted writes (named by atomic_write) of these keys."""
-    for entry in os.scandir(directory):
-        name = entry.name
-        if name.startswith(".") and name.endswith(".part"):
-            key = name[1:].rpartition(".json.")[0]
-            if key in keys:
-                os.unlink(entry.path)
 
 
 def measures(doc):

@@ -22,11 +22,12 @@ from contextlib import contextmanager
 from numbers import Integral
 from pathlib import Path
 
+from .._files import remove_stale_parts
 from .._options import ProfileOptions
 from .cluster import dask_results
 from .inputs import collect_inputs, parse_shard, result_key
 from .local import local_results
-from .records import remove_leftovers, resumed
+from .records import resumed
 from .summaries import PROFILES, BatchSummary, row, write_series, write_summary
 
 __all__ = ["run_batch"]
@@ -144,7 +145,8 @@ def _plan(paths, out, recorded, group_attr, force):
     """Each checkpoint's key and target, and the skipped rows of those still valid."""
     plans = [{"source": str(p), "path": str(p.resolve()), "key": result_key(p),
               "target": str(out / PROFILES / f"{result_key(p)}.json")} for p in paths]
-    remove_leftovers(out / PROFILES, {plan["key"] for plan in plans})
+    for directory in (out, out / PROFILES):  # files of killed writers; live ones stay
+        remove_stale_parts(directory)
     results = {}
     for plan in plans:
         found = None if force else resumed(plan, recorded, group_attr)

@@ -14,6 +14,7 @@ __all__ = ["profile_one", "warm", "failure", "DIED"]
 def profile_one(task):
     """Profile one checkpoint and write its result; return its summary fields."""
     from .._document import Profile
+    from .._files import write_document
     from .._pipeline import profile
 
     start = time.perf_counter()
@@ -30,7 +31,8 @@ def profile_one(task):
             "wall_seconds": round(time.perf_counter() - start, 6),
             "warnings": list(dict.fromkeys(one_line(w.message) for w in caught)),
             "written": datetime.now(timezone.utc).isoformat(timespec="seconds")}
-        Profile(doc).save(task["target"])
+        Profile(doc)  # validated; the batch cleaned stale temporary files once, at start
+        write_document(doc, task["target"], clean=False)
     except Exception as exc:
         return failure(task, f"{type(exc).__name__}: {one_line(exc)}", attrs,
                        time.perf_counter() - start)
