@@ -6,6 +6,7 @@ from pathlib import Path
 import numpy as np
 
 from ._errors import CheckpointError
+from ._linked import refuse_missing_sources
 from ._source import (AmplitudeSource, ChainSource, numeric_dtype, parse_axes, resolve_axes,
                       split_local_dims)
 
@@ -243,6 +244,7 @@ def open_source(path, *, state=None, tensors=None, local_dim=None, axes=None,
         parse_axes(axes)
     f = _open(path)
     try:
+        refuse_missing_sources(f, path)
         src = _pick(f, Path(path), state, tensors, local_dim, axes, precision)
     except BaseException:
         f.close()

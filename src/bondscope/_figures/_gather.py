@@ -12,7 +12,7 @@ import warnings
 from pathlib import Path
 
 from .._errors import CheckpointError, one_line
-from .._runinfo import RUN_ATTRS, run_attributes
+from .._runinfo import RUN_ATTRS, attribute_names, run_attributes
 from .._text import natural_key
 from ._names import figure_text, visible
 
@@ -431,7 +431,7 @@ def _path_entry(path, spectrum, options):
     from .._pipeline import profile
 
     prof = profile(path, options, **({"spectrum": True} if spectrum else {}))
-    meta = run_attributes(path)
+    meta = run_attributes(path, rename=attribute_names(options))
     meta.update(_profile_meta(prof))
     return _entry(path.stem, prof, str(path), meta, str(path))
 
