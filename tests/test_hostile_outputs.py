@@ -272,6 +272,7 @@ def hostile_batch(tmp_path_factory):
         ("chi4.h5", 3, 4, {"chi": 4, "label": "=HYPERLINK(\"http://x\")"}),
         ("bigattr.h5", 4, 4, {"time": big, "chi": "x" * 5000}),
         (RTL_NAME, 5, 4, {}),
+        ("page.html", 6, 4, {}),  # a checkpoint named like a report page
     ]:
         checkpoint(scan / name, seed, bond, libver="latest", **attrs)
     (scan / ESC_NAME).write_bytes(b"garbage, not HDF5")
@@ -464,3 +465,47 @@ def test_run_attribute_option_errors(kwargs, error):
 def test_run_attribute_names_do_not_change_resume():
     # the names decide only the rows' metadata, read afresh each run; results stay valid
     assert ProfileOptions(bond_dim_attr="chi").recorded() == ProfileOptions().recorded()
+
+
+# --- already handled on main (report and figure items of the same issue): verified here ------
+
+@pytest.fixture
+def plot_inputs(tmp_path):
+    names = {"math": checkpoint(tmp_path / "$\\foo$.h5", 7),
+             "odd": checkpoint(tmp_path / "odd.h5", 8, boundary=[1, 2], time=[0.5, 1.0]),
+             "pdf": checkpoint(tmp_path / "ck.pdf", 9)}
+    return tmp_path, names
+
+
+@pytest.mark.parametrize("case, status, words", [
+    ("math", 0, "figure written to"),  # a name with $...$ is text, not mathematics
+    ("odd", 0, "'boundary' = [1, 2] ignored"),  # odd metadata is a warning, not fatal
+    ("pdf", 2, "refusing to write over"),  # plot ck.pdf -o ck.pdf never overwrites the input
+])
+def test_plot_inputs_verified(plot_inputs, capsys, case, status, words):
+    root, names = plot_inputs
+    source = names[case]
+    output = source if case == "pdf" else root / f"{case}.png"
+    before = source.read_bytes()
+    assert main(["plot", str(source), "--kind", "entropy", "-o", str(output)]) == status
+    captured = capsys.readouterr()
+    assert words in captured.out + captured.err
+    assert source.read_bytes() == before
+
+
+def test_report_and_shards_verified(hostile_batch, tmp_path, capsys):
+    from bondscope._figures._gather import read_results
+
+    summary, rows = hostile_batch
+    shard = summary.out / "summary.shard-0-of-2.json"
+    shard.write_text(summary.files["json"].read_text())  # a shard beside the final run
+    try:
+        index = read_results(summary.out)
+        assert sorted(r["key"] for r in index.rows) == sorted(r["key"] for r in rows.values())
+    finally:
+        shard.unlink()
+    target = summary.out.parent / "scan" / "page.html"
+    before = target.read_bytes()
+    assert main(["report", str(summary.out), "-o", str(target)]) == 2  # never over an input
+    assert "refusing to write over" in capsys.readouterr().err
+    assert target.read_bytes() == before

@@ -20,7 +20,7 @@ COLUMNS = ("source", "status", "series", "time", "time_unit", "bond_dim", "bond_
            "kind", "sites",
            "max_entropy", "middle_entropy", "max_bond_dimension", "max_discarded_weight",
            "infidelity", "total_charge", "middle_number_entropy", "wall_seconds", "profile",
-           "key", "error", "warnings")
+           "key", "checkpoint", "error", "warnings")
 
 
 class BatchSummary:
@@ -81,7 +81,7 @@ def row(plan, found, pattern, group_attr, rename=None):
         series = str(attrs[group_attr])
     row = dict.fromkeys(COLUMNS)
     row.update({k: v for k, v in found.items() if k in COLUMNS})
-    row.update(source=plan["source"], key=plan["key"], series=series,
+    row.update(source=plan["source"], key=plan["key"], checkpoint=plan["path"], series=series,
                time=attrs.get("time"), time_unit=attrs.get("time_unit"),
                bond_dim=attrs.get("bond_dim"))
     if row["bond_dim"] is not None:
