@@ -161,6 +161,8 @@ def fifo(t):
 
 
 def unix_socket(t):
+    if len(str(t / "s.h5")) > 100:
+        pytest.skip("temporary directory too deep for a socket name")
     sock = socket.socket(socket.AF_UNIX)
     sock.bind(str(t / "s.h5"))
     sock.close()
