@@ -73,9 +73,6 @@ def _chain_problem(shapes, labels, words):
             allowed = "3 (or 2 at an end of the chain)"
             return (f"site {labels[i]}: tensor has rank {len(shape)} {tuple(shape)}, "
                     f"expected rank {allowed}"), i
-        if 0 in c:
-            return (f"site {labels[i]}: tensor shaped {tuple(shape)} has an axis of length "
-                    "0; expected bonds and local dimension >= 1"), i
         canon.append(c)
     if canon[0][0] != 1:
         return (f"site {labels[0]}: left bond is {canon[0][0]}, expected 1 at the open end "
@@ -102,6 +99,10 @@ def resolve_axes(shapes, labels, axes=None, where="chain"):
     if len(shapes) < 2:
         raise CheckpointError(f"{where}: found {len(shapes)} site tensor(s); a chain needs at "
                               "least 2 sites to have a cut")
+    for label, shape in zip(labels, shapes):
+        if 0 in shape:
+            raise CheckpointError(f"{where}: site {label}: tensor shaped {tuple(shape)} has an "
+                                  "axis of length 0; expected bonds and local dimension >= 1")
     if axes is not None:
         words = parse_axes(axes)
         problem = _chain_problem(shapes, labels, words)[0]
