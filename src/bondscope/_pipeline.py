@@ -210,7 +210,9 @@ def _document(src, opts, result, bonds):
         cut = {"position": i + 1,
                "bond_dimension": int(bonds[i]) if bonds else m["schmidt_rank"],
                "schmidt_rank": m["schmidt_rank"], "entropy": m["entropy"],
-               "renyi": m["renyi"], "resolution_floor": floor}
+               "renyi": m["renyi"], "resolution_floor": floor,
+               "entropy_error": m["entropy_error"], "renyi_error": m["renyi_error"],
+               "floor_sensitive": m["floor_sensitive"]}
         if opts.truncating:
             keep = min(kept_rank(s, opts.bond_dim, opts.weight_tol), m["schmidt_rank"])
             cut["kept"] = keep

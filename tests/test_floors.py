@@ -1,0 +1,87 @@
+"""Resolution floors bound the error actually made: measured against exact references.
+
+The reference for a chain is the state its stored tensors define, contracted in
+exact rational arithmetic (tests/reference/exact.py) and decomposed by
+scipy.linalg.svdvals (LAPACK; error about eps * ||psi||), so it does not share
+the sweeps' rounding in an ill-conditioned gauge.  docs/validation.md records
+the measured error against the floor for each row.
+"""
+
+import math
+import warnings
+
+import numpy as np
+import pytest
+
+import bondscope
+from bondscope._kernels.chain import chain_spectra
+from bondscope._measure import ResolutionWarning
+from bondscope._source import chain_from_arrays
+from builders import direct_spectra, random_chain
+from reference.exact import exact_vector, regauge
+
+EPS = float(np.finfo(np.float64).eps)
+
+
+def _errors(spectra, ref):
+    """Largest |computed - reference| per cut, missing values counted as 0."""
+    out = []
+    for s, r in zip(spectra, ref):
+        k = max(len(s), len(r))
+        a, b = np.zeros(k), np.zeros(k)
+        a[:len(s)], b[:len(r)] = s, r
+        out.append(float(np.abs(a - b).max()))
+    return np.array(out)
+
+
+def _sweep(tensors, precision="promote"):
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ResolutionWarning)
+        return chain_spectra(chain_from_arrays(tensors, precision=precision))
+
+
+GAUGES = [
+    # (dtype, cond(G) on every bond); the error grows as eps cond(G)^2 (issue 14)
+    (np.float64, 1.0),        # the chain as drawn: floor stays near eps
+    (np.float64, 1e2),
+    (np.float64, 1e4),
+    (np.float64, 1e6),
+    (np.float64, 1e8),
+    (np.float64, 1e10),       # the error reaches O(0.1): nothing below the floor is kept
+    (np.complex128, 1e6),
+    (np.complex128, 1e10),
+]
+
+
+@pytest.mark.parametrize("dtype, cond", GAUGES)
+def test_floor_bounds_error_in_conditioned_gauge(dtype, cond):
+    # reference: scipy.linalg.svdvals of the exactly contracted stored state
+    rng = np.random.default_rng(14)
+    dims, bonds = [2] * 7, [2, 4, 8, 8, 4, 2]
+    tensors = random_chain(rng, dims, bonds, dtype)
+    if cond > 1:
+        tensors = regauge(rng, tensors, cond)
+    ref = direct_spectra(exact_vector(tensors), dims)
+    result = _sweep(tensors)
+    err, floors = _errors(result.spectra, ref), np.array(result.floors)
+    assert np.all(err <= floors), f"errors {err} above floors {floors}"
+    if cond == 1:
+        assert np.all(floors < 1e3 * EPS)        # an ordinary gauge keeps its resolution
+
+
+def test_gauge_warns_and_does_not_count_rounding_as_rank():
+    # bond 16 where the rank is at most 8 (4 qubits on the smaller side): an
+    # ill-conditioned gauge must not turn rounding into rank (issue 14: 10 instead of 8)
+    rng = np.random.default_rng(8)
+    dims, bonds = [2] * 6, [2, 4, 16, 4, 2]
+    plain = random_chain(rng, dims, bonds)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", bondscope.UnnormalisedStateWarning)
+        warnings.simplefilter("error", ResolutionWarning)
+        ref = bondscope.profile(plain)
+        warnings.simplefilter("ignore", bondscope.UnnormalisedStateWarning)
+        with pytest.warns(ResolutionWarning, match="resolved only to"):
+            bad = bondscope.profile(regauge(rng, plain, 1e8))
+    assert ref.schmidt_ranks.tolist() == [2, 4, 8, 4, 2]
+    assert np.all(bad.schmidt_ranks <= ref.schmidt_ranks)
+    assert np.all(bad.column("resolution_floor") > math.sqrt(EPS))
