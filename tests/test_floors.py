@@ -17,7 +17,7 @@ import bondscope
 from bondscope._kernels.chain import chain_spectra
 from bondscope._measure import ResolutionWarning
 from bondscope._source import chain_from_arrays
-from builders import direct_spectra, random_chain
+from builders import contract, direct_spectra, random_chain
 from reference.exact import exact_vector, regauge
 
 EPS = float(np.finfo(np.float64).eps)
@@ -85,3 +85,78 @@ def test_gauge_warns_and_does_not_count_rounding_as_rank():
     assert ref.schmidt_ranks.tolist() == [2, 4, 8, 4, 2]
     assert np.all(bad.schmidt_ranks <= ref.schmidt_ranks)
     assert np.all(bad.column("resolution_floor") > math.sqrt(EPS))
+
+
+STORED = [
+    # (cond(G), precision): float32 site tensors; error against the exact stored state
+    (1.0, "stored"),          # computed in float32 (issue 14: floor was 1.7x optimistic)
+    (1e2, "stored"),
+    (1e3, "stored"),          # eps32 cond^2 ~ 0.1: little is resolved, and the floor says so
+    (1e2, "promote"),         # computed in double, known to float32 eps
+]
+
+
+@pytest.mark.parametrize("cond, precision", STORED)
+def test_single_precision_chain_floor_bounds_error(cond, precision):
+    # reference: scipy.linalg.svdvals of the exactly contracted float32 tensors
+    rng = np.random.default_rng(32)
+    dims, bonds = [2] * 7, [2, 4, 8, 8, 4, 2]
+    tensors = random_chain(rng, dims, bonds)
+    if cond > 1:
+        tensors = regauge(rng, tensors, cond)
+    tensors = [t.astype(np.float32) for t in tensors]
+    ref = direct_spectra(exact_vector([t.astype(np.float64) for t in tensors]), dims)
+    result = _sweep(tensors, precision)
+    err, floors = _errors(result.spectra, ref), np.array(result.floors)
+    assert np.all(err <= floors), f"errors {err} above floors {floors}"
+    assert np.all(floors >= np.finfo(np.float32).eps * 0.5)
+
+
+def _rank_four_state(rng, sites):
+    """A random state with Schmidt rank min(2^l, 4, 2^(N-l)) at cut l (an MPS of bond 4)."""
+    bonds = [min(2 ** k, 4, 2 ** (sites - k)) for k in range(1, sites)]
+    psi = contract(random_chain(rng, [2] * sites, bonds))
+    return psi / np.linalg.norm(psi), bonds
+
+
+VECTORS32 = [
+    # (qubits, route): a rank-4 state stored as float32, profiled with the default promotion
+    (12, "svd"),
+    (12, "gram"),
+    (16, "auto"),             # the gram route, chosen by size
+]
+
+
+@pytest.mark.parametrize("sites, route", VECTORS32)
+def test_single_precision_vector_rounding_is_not_rank(sites, route):
+    # issue 14: rank 64 instead of 4 when the floor followed the compute precision;
+    # reference: scipy.linalg.svdvals of the state before it was rounded to float32
+    rng = np.random.default_rng(4)
+    psi, bonds = _rank_four_state(rng, sites)
+    prof = bondscope.profile(psi.astype(np.float32), route=route, spectrum=True)
+    assert prof.schmidt_ranks.tolist() == bonds
+    assert prof.get("precision") == "float64"
+    ref = direct_spectra(psi, [2] * sites)
+    floors = prof.column("resolution_floor")
+    err = _errors(prof.spectra, [r[:k] for r, k in zip(ref, bonds)])
+    assert np.all(err <= floors)
+
+
+NORMS = [
+    # (scale of a normalised state, warned): the warning threshold is 1e4 float32 eps
+    (1.00005, False),         # ordinary time-evolution output (issue 14)
+    (1 - 1e-6, False),
+    (1.01, True),
+    (5.0, True),              # never normalised
+]
+
+
+@pytest.mark.parametrize("scale, warned", NORMS)
+def test_norm_warning_threshold_and_recorded_norm(scale, warned):
+    bell = np.array([1.0, 0.0, 0.0, 1.0]) / math.sqrt(2)
+    with warnings.catch_warnings(record=True) as seen:
+        warnings.simplefilter("always")
+        prof = bondscope.profile(scale * np.kron(bell, bell))
+    flagged = [w for w in seen if issubclass(w.category, bondscope.UnnormalisedStateWarning)]
+    assert bool(flagged) == warned
+    assert prof.norm == pytest.approx(scale, rel=1e3 * EPS)    # recorded either way

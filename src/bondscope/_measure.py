@@ -5,7 +5,7 @@ import math
 import numpy as np
 
 __all__ = ["entropy_measures", "spectrum_measures", "renyi_orders", "resolution_floor",
-           "kept_rank", "discarded_weight", "ResolutionWarning", "SENSITIVE"]
+           "kept_rank", "discarded_weight", "ResolutionWarning", "SENSITIVE", "floor_errors"]
 
 # sum of lambda^2 off 1 by more than this (relative) is not a normalised spectrum
 _NORM_SLACK = 1e-6
@@ -267,3 +267,19 @@ def _interval_error(resolved, unresolved, floor, alpha, value):
     big = float((hi ** (2 * alpha)).sum()) + unresolved * floor ** (2 * alpha)
     ends = [math.log(x) / (1.0 - alpha) if x > 0 else math.inf for x in (small, big)]
     return max(abs(e - value) for e in ends)
+
+
+def floor_errors(measures, orders):
+    """The document's ``floor_errors`` field from the per-cut :func:`spectrum_measures`.
+
+    Returns
+    -------
+    dict
+        ``entropy``: the von Neumann entropy's bound per cut; ``renyi``: per order,
+        the bound per cut; ``floor_sensitive``: per order, the cut positions (1-based)
+        where it is too sensitive to the floor to be reported (empty lists included).
+    """
+    return {"entropy": [m["entropy_error"] for m in measures],
+            "renyi": {k: [m["renyi_error"][k] for m in measures] for k in orders},
+            "floor_sensitive": {k: [i + 1 for i, m in enumerate(measures)
+                                    if k in m["floor_sensitive"]] for k in orders}}
