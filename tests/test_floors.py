@@ -160,3 +160,35 @@ def test_norm_warning_threshold_and_recorded_norm(scale, warned):
     flagged = [w for w in seen if issubclass(w.category, bondscope.UnnormalisedStateWarning)]
     assert bool(flagged) == warned
     assert prof.norm == pytest.approx(scale, rel=1e3 * EPS)    # recorded either way
+
+
+CHARGED = [
+    # (gauge, cond, route): charge-resolved engines on a random U(1) eigenstate, 8 qubits
+    ("block", 1e4, "block-sweep"),    # conditioned inside each sector: blocks stay blocks
+    ("block", 1e8, "block-sweep"),
+    ("mixing", 1e4, "charge-sweep"),  # a gauge that mixes charges on every bond
+    ("mixing", 1e8, "charge-sweep"),  # rounding leaks weight out of the total charge
+]
+
+
+@pytest.mark.parametrize("gauge, cond, route", CHARGED)
+def test_charge_engine_floors_bound_error(gauge, cond, route):
+    # reference: scipy.linalg.svdvals of the exactly contracted stored state
+    from bondscope._charges import parse_charges
+    from bondscope._kernels.sectors import charge_spectra
+    from reference import charges as symmetric
+    from reference.exact import block_regauge
+
+    rng = np.random.default_rng(5)
+    qubit, n = np.array([[0], [1]]), 8
+    tensors, labels = symmetric.random_symmetric_chain(rng, [qubit] * n, (0,), (4,), 3)
+    tensors = block_regauge(rng, tensors, labels, cond) if gauge == "block" \
+        else regauge(rng, tensors, cond)
+    ref = direct_spectra(exact_vector(tensors), [2] * n)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ResolutionWarning)
+        result = charge_spectra(chain_from_arrays(tensors),
+                                parse_charges("0,1", "0").bind([2] * n))
+    assert result.route == route
+    err, floors = _errors(result.spectra, ref), np.array(result.floors)
+    assert np.all(err <= floors), f"errors {err} above floors {floors}"

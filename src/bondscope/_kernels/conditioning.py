@@ -17,7 +17,8 @@ gauge every norm is about 1 and the bound is about the number of sites.
 
 import numpy as np
 
-__all__ = ["GaugeLedger", "spectral_norm", "gauge_floors", "warn_large_floor"]
+__all__ = ["GaugeLedger", "spectral_norm", "block_norms", "bond_norm", "gauge_floors",
+           "warn_large_floor"]
 
 # Power steps on M^H M: the estimate converges to ||M||_2 from below, and after this
 # many steps is within a few per cent for the bond and site matrices of a sweep
@@ -67,14 +68,20 @@ class GaugeLedger:
         self.a_cols = np.zeros(n)            # ||A_j|| as (left phys, right)
 
     def left(self, j, a, r_next):
-        """Step j of the left-to-right sweep: R_{j+1} from R_j A_j."""
-        self.a_rows[j] = spectral_norm(a.reshape(a.shape[0], -1))
-        self.r[j + 1] = spectral_norm(r_next)
+        """Step j of the left-to-right sweep: R_{j+1} from R_j A_j (dense arrays)."""
+        self.left_norms(j, spectral_norm(a.reshape(a.shape[0], -1)), spectral_norm(r_next))
 
     def right(self, j, a, l_here):
-        """Step j of the right-to-left sweep: L_j from A_j L_{j+1}."""
-        self.a_cols[j] = spectral_norm(a.reshape(-1, a.shape[2]))
-        self.l[j] = spectral_norm(l_here)
+        """Step j of the right-to-left sweep: L_j from A_j L_{j+1} (dense arrays)."""
+        self.right_norms(j, spectral_norm(a.reshape(-1, a.shape[2])), spectral_norm(l_here))
+
+    def left_norms(self, j, a_rows, r_next):
+        """:meth:`left` from the norms: ||A_j|| as (left, phys right), ||R_{j+1}||."""
+        self.a_rows[j], self.r[j + 1] = a_rows, r_next
+
+    def right_norms(self, j, a_cols, l_here):
+        """:meth:`right` from the norms: ||A_j|| as (left phys, right), ||L_j||."""
+        self.a_cols[j], self.l[j] = a_cols, l_here
 
     def factors(self, norm):
         """Per cut position p = 1..N-1, the bound on its rounding in units of eps * ||psi||.
@@ -94,6 +101,24 @@ class GaugeLedger:
         after = np.cumsum(right[::-1])[::-1]  # after[p]: right steps p..N-1
         p = np.arange(1, n)
         return (r[p] * l[p] + before[p - 1] + after[p]) / norm
+
+
+def block_norms(blocks):
+    """(||A|| as (left, phys right), ||A|| as (left phys, right)) of a block-sparse site
+    ``{(q_left, q_phys): (q_right, block)}``: each is block diagonal after grouping its
+    rows by q_left (columns by q_right), so its norm is the largest group's, and a
+    group's is at most the root sum of squares of its blocks' norms."""
+    rows, cols = {}, {}
+    for (ql, _), (qr, blk) in blocks.items():
+        rows[ql] = rows.get(ql, 0.0) + spectral_norm(blk.reshape(blk.shape[0], -1)) ** 2
+        cols[qr] = cols.get(qr, 0.0) + spectral_norm(blk.reshape(-1, blk.shape[2])) ** 2
+    return (float(np.sqrt(max(rows.values(), default=0.0))),
+            float(np.sqrt(max(cols.values(), default=0.0))))
+
+
+def bond_norm(sectors):
+    """||M|| of a block-diagonal bond matrix given as ``{q: block}``."""
+    return max((spectral_norm(m) for m in sectors.values()), default=0.0)
 
 
 def gauge_floors(spectra, sizes, factors, eps, where):
