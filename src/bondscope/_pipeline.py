@@ -163,6 +163,10 @@ def profile(source, options=None, *, progress=False, **kwargs):
     UnnormalisedStateWarning
         The norm differs from 1 by more than 1.2e-3 (accumulated single-precision
         rounding, see ``NORM_TOLERANCE``); the normalised state is profiled.
+    ResolutionWarning
+        An ill-conditioned stored gauge leaves the values resolved only above
+        sqrt(eps), or a Rényi order is too sensitive to the floor to be reported
+        at some cuts (the document's ``floor_errors``).
 
     Notes
     -----
@@ -190,7 +194,19 @@ def profile(source, options=None, *, progress=False, **kwargs):
             result, bonds = kernel(src, opts, bar.update if bar is not None else None)
         _warn_norm(src, result.norm)
         doc = _document(src, opts, result, bonds)
+    _warn_sensitive(doc)
     return Profile(doc)
+
+
+def _warn_sensitive(doc):
+    from ._measure import ResolutionWarning
+
+    for order, cuts in doc["floor_errors"]["floor_sensitive"].items():
+        if cuts:
+            warnings.warn(f"{doc['source']}: Renyi order {order} is too sensitive to the "
+                          f"resolution floor at {len(cuts)} of {len(doc['cuts'])} cuts "
+                          "(values under the floor could move it; see floor_errors)",
+                          ResolutionWarning, stacklevel=3)
 
 
 def _warn_norm(src, norm):

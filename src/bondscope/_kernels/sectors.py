@@ -408,10 +408,11 @@ def sector_measures(sectors, floor, charges, *, renyi=(), base=math.e):
 
     Notes
     -----
-    The entropies use every value of a sector (also those below its floor),
-    so number + configurational entropy equals the entropy of the whole
-    spectrum to rounding.  Sectors without a value above the floor are not
-    listed; their weight is below rank times floor^2.
+    The entropies use the values above the floor, as the whole cut's do, so
+    number + configurational entropy equals the cut's entropy to within the
+    weight under the floor (at most the unresolved count times floor^2).
+    Sectors without a value above the floor are not listed; their weight is
+    below rank times floor^2.
     """
     scale = 1.0 / math.log(base)
     listed, number, conf = [], 0.0, 0.0
