@@ -20,7 +20,7 @@ sys.path.insert(0, str(ROOT / "src"))
 
 from builders import contract, direct_spectra, random_chain  # noqa: E402
 from reference import charges as symmetric  # noqa: E402
-from reference.exact import block_regauge, exact_vector, regauge  # noqa: E402
+from reference.exact import block_regauge, exact_vector, regauge, spectrum_errors  # noqa: E402
 
 from bondscope._charges import parse_charges  # noqa: E402
 from bondscope._kernels.amplitudes import amplitude_spectra  # noqa: E402
@@ -30,13 +30,7 @@ from bondscope._source import amplitudes_from_array, chain_from_arrays  # noqa: 
 
 
 def _row(label, spectra, floors, ref):
-    err = []
-    for s, r in zip(spectra, ref):
-        k = max(len(s), len(r))
-        a, b = np.zeros(k), np.zeros(k)
-        a[:len(s)], b[:len(r)] = s, r
-        err.append(float(np.abs(a - b).max()))
-    err, floors = np.array(err), np.array(floors)
+    err, floors = spectrum_errors(spectra, ref), np.array(floors)
     ratio = float(np.min(floors / np.maximum(err, 1e-300)))
     return f"| {label} | {err.max():.1e} | {floors.min():.1e} | {ratio:.2g} |"
 

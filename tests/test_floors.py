@@ -12,26 +12,15 @@ import warnings
 
 import numpy as np
 import pytest
+from builders import contract, direct_spectra, random_chain
+from reference.exact import exact_vector, regauge, spectrum_errors
 
 import bondscope
 from bondscope._kernels.chain import chain_spectra
 from bondscope._measure import ResolutionWarning
 from bondscope._source import chain_from_arrays
-from builders import contract, direct_spectra, random_chain
-from reference.exact import exact_vector, regauge
 
 EPS = float(np.finfo(np.float64).eps)
-
-
-def _errors(spectra, ref):
-    """Largest |computed - reference| per cut, missing values counted as 0."""
-    out = []
-    for s, r in zip(spectra, ref):
-        k = max(len(s), len(r))
-        a, b = np.zeros(k), np.zeros(k)
-        a[:len(s)], b[:len(r)] = s, r
-        out.append(float(np.abs(a - b).max()))
-    return np.array(out)
 
 
 def _sweep(tensors, precision="promote"):
@@ -63,7 +52,7 @@ def test_floor_bounds_error_in_conditioned_gauge(dtype, cond):
         tensors = regauge(rng, tensors, cond)
     ref = direct_spectra(exact_vector(tensors), dims)
     result = _sweep(tensors)
-    err, floors = _errors(result.spectra, ref), np.array(result.floors)
+    err, floors = spectrum_errors(result.spectra, ref), np.array(result.floors)
     assert np.all(err <= floors), f"errors {err} above floors {floors}"
     if cond == 1:
         assert np.all(floors < 1e3 * EPS)        # an ordinary gauge keeps its resolution
@@ -107,7 +96,7 @@ def test_single_precision_chain_floor_bounds_error(cond, precision):
     tensors = [t.astype(np.float32) for t in tensors]
     ref = direct_spectra(exact_vector([t.astype(np.float64) for t in tensors]), dims)
     result = _sweep(tensors, precision)
-    err, floors = _errors(result.spectra, ref), np.array(result.floors)
+    err, floors = spectrum_errors(result.spectra, ref), np.array(result.floors)
     assert np.all(err <= floors), f"errors {err} above floors {floors}"
     assert np.all(floors >= np.finfo(np.float32).eps * 0.5)
 
@@ -138,7 +127,7 @@ def test_single_precision_vector_rounding_is_not_rank(sites, route):
     assert prof.get("precision") == "float64"
     ref = direct_spectra(psi, [2] * sites)
     floors = prof.column("resolution_floor")
-    err = _errors(prof.spectra, [r[:k] for r, k in zip(ref, bonds)])
+    err = spectrum_errors(prof.spectra, [r[:k] for r, k in zip(ref, bonds)])
     assert np.all(err <= floors)
 
 
@@ -174,10 +163,11 @@ CHARGED = [
 @pytest.mark.parametrize("gauge, cond, route", CHARGED)
 def test_charge_engine_floors_bound_error(gauge, cond, route):
     # reference: scipy.linalg.svdvals of the exactly contracted stored state
-    from bondscope._charges import parse_charges
-    from bondscope._kernels.sectors import charge_spectra
     from reference import charges as symmetric
     from reference.exact import block_regauge
+
+    from bondscope._charges import parse_charges
+    from bondscope._kernels.sectors import charge_spectra
 
     rng = np.random.default_rng(5)
     qubit, n = np.array([[0], [1]]), 8
@@ -190,5 +180,5 @@ def test_charge_engine_floors_bound_error(gauge, cond, route):
         result = charge_spectra(chain_from_arrays(tensors),
                                 parse_charges("0,1", "0").bind([2] * n))
     assert result.route == route
-    err, floors = _errors(result.spectra, ref), np.array(result.floors)
+    err, floors = spectrum_errors(result.spectra, ref), np.array(result.floors)
     assert np.all(err <= floors), f"errors {err} above floors {floors}"

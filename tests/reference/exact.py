@@ -11,7 +11,7 @@ from fractions import Fraction
 
 import numpy as np
 
-__all__ = ["exact_vector", "conditioned_gauge", "regauge", "block_regauge"]
+__all__ = ["block_regauge", "conditioned_gauge", "exact_vector", "regauge", "spectrum_errors"]
 
 _exact = np.vectorize(Fraction, otypes=[object])
 
@@ -81,3 +81,14 @@ def block_regauge(rng, tensors, labels, cond):
         out[b - 1] = np.einsum("lpr,rs->lps", out[b - 1], g)
         out[b] = np.einsum("sr,rpq->spq", np.linalg.inv(g), out[b])
     return out
+
+
+def spectrum_errors(spectra, reference):
+    """Largest |computed - reference| per cut, values missing on either side counted as 0."""
+    out = []
+    for s, r in zip(spectra, reference):
+        k = max(len(s), len(r))
+        a, b = np.zeros(k), np.zeros(k)
+        a[:len(s)], b[:len(r)] = s, r
+        out.append(float(np.abs(a - b).max()))
+    return np.array(out)

@@ -17,8 +17,14 @@ gauge every norm is about 1 and the bound is about the number of sites.
 
 import numpy as np
 
-__all__ = ["GaugeLedger", "spectral_norm", "block_norms", "bond_norm", "gauge_floors",
-           "warn_large_floor"]
+__all__ = [
+    "GaugeLedger",
+    "block_norms",
+    "bond_norm",
+    "gauge_floors",
+    "spectral_norm",
+    "warn_large_floor",
+]
 
 # Power steps on M^H M: the estimate converges to ||M||_2 from below, and after this
 # many steps is within a few per cent for the bond and site matrices of a sweep
