@@ -190,8 +190,13 @@ def chain_spectra(src, *, bond_dim=None, weight_tol=None, scratch=None, tick=Non
     QR factorisations gives R_i with psi = P_i R_i [...], P_i an isometry.  The
     Schmidt values at cut i are the singular values of R_i L_i, so no canonical
     form is assumed and any gauge gives the same spectra.  Every factorisation
-    is orthogonal, hence backward stable: values are resolved to about
-    eps * chi * lambda_max.
+    is orthogonal, hence backward stable, so in a near-canonical gauge values
+    are resolved to about eps * chi * lambda_max; the products feeding them
+    are not, and a gauge G far from canonical makes their rounding grow as
+    eps cond(G)^2 at every cut.  The sweeps record the norms they multiply
+    (:class:`.conditioning.GaugeLedger`, O(d chi^2) per site) and each cut's
+    floor bounds that rounding too, at the coarser of the stored and compute
+    precisions; a ResolutionWarning says when it exceeds sqrt(eps).
 
     Work per site: two products with a bond matrix, two QR factorisations and
     one values-only SVD of a chi x chi matrix; O(N d chi^3) in all.  Every

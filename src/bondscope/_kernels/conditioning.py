@@ -162,8 +162,8 @@ def gauge_floors(spectra, sizes, factors, eps, where):
     one operation; rounding errors of sums of n terms grow as sqrt(n) eps with
     high probability (Higham & Mary, SIAM J. Sci. Comput. 41, A2815 (2019)),
     hence sqrt(n).  Measured against exact references (tests/test_floors.py,
-    docs/validation.md) the floor exceeds the error made by 30x or more in a
-    canonical gauge and by 200x or more in gauges with cond up to 1e10.
+    docs/validation.md) the floor exceeds the error made by 25x or more in an
+    ordinary gauge and by 140x or more in gauges with cond from 1e2 to 1e10.
     """
     from .._measure import resolution_floor
 
