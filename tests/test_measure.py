@@ -101,6 +101,10 @@ ORDERS_BELOW_ONE = [
                  id="rank2-gram"),
     pytest.param(lambda: _ghz_like(12, 0.9), "svd", "0.1", _renyi([0.9, 0.1], 0.1), True,
                  id="rank2-svd"),
+    # order 2 of the same state on the gram route: its weights are resolved to eps, and
+    # the order is not flagged although lambda itself is resolved only to sqrt(eps)
+    pytest.param(lambda: _ghz_like(20, 0.9), "gram", "2", _renyi([0.9, 0.1], 2), False,
+                 id="rank2-gram-order2"),
     # the same state as an MPS of bond 2: no value can hide under the floor
     pytest.param(lambda: _ghz_chain(8, 0.9),
                  None, "0.1", _renyi([0.9, 0.1], 0.1), False, id="rank2-mps"),

@@ -188,9 +188,13 @@ def entropy_measures(values, *, renyi=(), base=math.e, floor=0.0):
     return spectrum_measures(np.sort(v)[::-1], renyi_orders(renyi), base, floor)
 
 
-def spectrum_measures(values, orders, base, floor):
+def spectrum_measures(values, orders, base, floor, *, weights=False):
     """:func:`entropy_measures` for trusted input: a normalised descending spectrum and
-    validated order keys (the kernels' path)."""
+    validated order keys (the kernels' path).
+
+    ``weights=True`` when the floor comes from weights lambda^2 resolved to floor^2
+    (the gram route): a resolved value is then off by at most floor^2 / lambda, less
+    than the floor, which the bounds use."""
     v = np.asarray(values, dtype=np.float64)
     scale = 1.0 / math.log(base)
     resolved = v[v > floor] if floor > 0 else v[v > 0]
@@ -213,8 +217,8 @@ def spectrum_measures(values, orders, base, floor):
         else:
             val = math.log(float((nz ** alpha).sum())) / (1.0 - alpha)
         out[key] = max(val, 0.0) * scale + 0.0           # never -0.0
-        errors[key] = _order_error(resolved, unresolved, floor, alpha, val) * scale
-    entropy_error = _order_error(resolved, unresolved, floor, 1.0, entropy) * scale
+        errors[key] = _order_error(resolved, unresolved, floor, alpha, val, weights) * scale
+    entropy_error = _order_error(resolved, unresolved, floor, 1.0, entropy, weights) * scale
     sensitive = [k for k in orders if errors[k] > SENSITIVE * max(1.0, out[k])]
     return {"entropy": max(entropy, 0.0) * scale + 0.0, "renyi": out, "schmidt_rank": rank,
             "levels": -np.log(nz), "entropy_error": entropy_error, "renyi_error": errors,
@@ -231,10 +235,11 @@ def _entropy_term(p):
     return -p * np.log(np.where(p > 0, p, 1.0))
 
 
-def _order_error(resolved, unresolved, floor, alpha, value):
+def _order_error(resolved, unresolved, floor, alpha, value, weights=False):
     """Bound (nats) on the error of one measure from the floor ``floor``.
 
-    Each resolved value may be off by up to ``floor`` and each of the
+    Each resolved value may be off by up to ``floor`` (floor^2 / lambda with
+    ``weights``, whose lambda^2 are resolved to floor^2) and each of the
     ``unresolved`` ones may be anything in [0, floor]; the bound is the
     largest change of the measure over those intervals: for 0 < alpha != 1,
     sum p^alpha lies in [sum (lambda - f)^(2 alpha), sum (lambda + f)^(2 alpha)
@@ -244,15 +249,16 @@ def _order_error(resolved, unresolved, floor, alpha, value):
     unresolved).
     """
     widest = math.log(resolved.size + unresolved)      # every measure lies in [0, ln D]
-    return min(_interval_error(resolved, unresolved, floor, alpha, value), widest)
+    return min(_interval_error(resolved, unresolved, floor, alpha, value, weights), widest)
 
 
-def _interval_error(resolved, unresolved, floor, alpha, value):
+def _interval_error(resolved, unresolved, floor, alpha, value, weights):
     if alpha == 0:
         return math.log((resolved.size + unresolved) / resolved.size)
     if not floor > 0:
         return 0.0
-    lo, hi = np.maximum(resolved - floor, 0.0), np.minimum(resolved + floor, 1.0)
+    off = np.minimum(floor, floor * floor / resolved) if weights else floor
+    lo, hi = np.maximum(resolved - off, 0.0), np.minimum(resolved + off, 1.0)
     if math.isinf(alpha):
         return 2.0 * math.log(resolved[0] / lo[0]) if lo[0] > 0 else math.inf
     if alpha == 1:

@@ -222,9 +222,13 @@ def _document(src, opts, result, bonds):
            "sites": src.sites, "local_dims": src.local_dims, "log_base": opts.base,
            "norm": result.norm, "route": result.route, "dtype": str(src.dtype),
            "precision": str(src.compute_dtype), "bondscope_version": __version__}
+    from ._source import source_eps
+
+    # gram floors come from weights resolved to floor^2, unless coarser data set them
+    weights = result.route == "gram" and source_eps(src) <= np.finfo(src.compute_dtype).eps
     cuts, bound, bounds = [], 0.0, []
     for i, (s, floor) in enumerate(zip(result.spectra, result.floors)):
-        m = spectrum_measures(s, opts.renyi, opts.base_value, floor)
+        m = spectrum_measures(s, opts.renyi, opts.base_value, floor, weights=weights)
         cut = {"position": i + 1,
                "bond_dimension": int(bonds[i]) if bonds else m["schmidt_rank"],
                "schmidt_rank": m["schmidt_rank"], "entropy": m["entropy"],
