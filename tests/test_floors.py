@@ -182,3 +182,21 @@ def test_charge_engine_floors_bound_error(gauge, cond, route):
     assert result.route == route
     err, floors = spectrum_errors(result.spectra, ref), np.array(result.floors)
     assert np.all(err <= floors), f"errors {err} above floors {floors}"
+
+
+def test_cli_says_when_the_gauge_costs_resolution(tmp_path):
+    # the warning reaches the command line as one 'warning:' line; the profile is written
+    import subprocess
+    import sys
+
+    from builders import write_chain
+
+    rng = np.random.default_rng(9)
+    tensors = regauge(rng, random_chain(rng, [2] * 6, [2, 4, 8, 4, 2]), 1e8)
+    path = write_chain(tmp_path / "bad.h5", tensors)
+    r = subprocess.run([sys.executable, "-m", "bondscope", "profile", str(path), "--json"],
+                       capture_output=True, text=True, timeout=120)
+    assert r.returncode == 0, r.stderr
+    lines = [line for line in r.stderr.splitlines() if "resolved only to" in line]
+    assert len(lines) == 1 and lines[0].startswith("warning: ")
+    assert "Traceback" not in r.stderr
