@@ -11,10 +11,11 @@ import numpy as np
 
 from ._errors import CheckpointError
 from ._exponent import amplitude_shift, shifted, tensor_shift
+from ._options import PRECISIONS
 from ._vectorshape import power_hint
 
 __all__ = ["ChainSource", "AmplitudeSource", "AXIS_WORDS", "parse_axes", "chain_from_arrays",
-           "amplitudes_from_array", "compute_dtype", "numeric_dtype"]
+           "amplitudes_from_array", "compute_dtype", "numeric_dtype", "source_eps"]
 
 AXIS_WORDS = ("left", "phys", "right")
 
@@ -42,11 +43,30 @@ def numeric_dtype(dtype, where):
 
 
 def compute_dtype(dtype, precision="promote"):
-    """The dtype the sweep works in: float64/complex128, or the stored single precision."""
+    """The dtype the sweep works in: float64/complex128, or the stored single precision.
+
+    Raises
+    ------
+    ValueError
+        ``precision`` is not one of ``promote``, ``stored``.
+    """
+    if precision not in PRECISIONS:
+        raise ValueError(f"precision (--precision) must be one of {', '.join(PRECISIONS)}, "
+                         f"found {precision!r}")
     dtype = np.dtype(dtype)
     if precision == "stored" and dtype in (np.float32, np.complex64):
         return dtype
     return np.dtype(np.complex128 if dtype.kind == "c" else np.float64)
+
+
+def source_eps(src):
+    """Relative precision of a source's numbers: eps of the coarser of its stored dtype
+    and its compute dtype (integers are exact; a float32 state is known to float32 eps
+    even when computed in double)."""
+    dtypes = [np.dtype(src.compute_dtype)]
+    if np.dtype(src.dtype).kind in "fc":
+        dtypes.append(np.dtype(src.dtype))
+    return max(float(np.finfo(d).eps) for d in dtypes)
 
 
 def _canonical(shape, words, first, last):
