@@ -136,6 +136,13 @@ def _chain_candidate(f, pattern, hits, axes):
     if problem is None:
         try:
             shapes = [f[p].shape for p in cand.datasets]
+            from ._mixed import is_mixed_family, kind_of, mixed_axes, stored_hint
+
+            if is_mixed_family(shapes):
+                cand.axes = mixed_axes(shapes, numbers, axes, stored_hint(f[cand.datasets[0]]),
+                                       where=f"{f.filename}: {pattern}")
+                cand.kind = kind_of(cand.axes)
+                return cand
             cand.axes = resolve_axes(shapes, numbers, axes, where=f"{f.filename}: {pattern}")
         except CheckpointError as exc:
             cand.problem = str(exc)
@@ -157,7 +164,7 @@ def scan(f, local_dim=None):
     paths = _datasets(f)
     patterns = {}
     for p in paths:
-        if f[p].ndim not in (2, 3):
+        if f[p].ndim not in (2, 3, 4):
             continue
         for m in _NUMBER.finditer(p):
             pat = p[:m.start()] + "{site}" + p[m.end():]
@@ -310,5 +317,10 @@ def _chain_source(f, path, cand, precision):
     dtypes = [_stored_dtype(d, f"{path}:{d.name}") for d in dsets]
     dtype = np.result_type(*dtypes)
     readers = [_reader(d, t) for d, t in zip(dsets, dtypes)]
+    if len(cand.axes) == 4:
+        from ._mixed import MixedSource
+
+        return MixedSource([d.shape for d in dsets], dtype, lambda i: readers[i](), cand.labels,
+                           cand.axes, f"{path}:{cand.spec}", precision)
     return ChainSource([d.shape for d in dsets], dtype, lambda i: readers[i](), cand.labels,
                        cand.axes, f"{path}:{cand.spec}", precision)

@@ -21,7 +21,7 @@ LAYOUT = ("state", "tensors", "local_dim", "axes")
 # block-sparse checkpoints (bondscope._blocksparse)
 BLOCK_LAYOUT = ("blocks", "block_form", "charge_flow")
 MEASURES = ("renyi", "base", "spectrum", "bond_dim", "weight_tol", "route", "precision",
-            "charges", "modulus")
+            "charges", "modulus", "disentangle")
 # how a profile is computed, not what it holds (left out of a batch result's record)
 RESOURCES = ("scratch", "max_memory", "threads")
 ROUTES = ("auto", "gram", "svd")
@@ -117,6 +117,9 @@ class ProfileOptions:
         Block-sparse form (found from the groups' members when omitted).
     charge_flow : {"rightward", "leftward"}
         Block conservation rule: q_right = q_left + q_phys, or q_left = q_right + q_phys.
+    disentangle : bool
+        Purifications: also the cut entropy after optimising ancilla unitaries
+        beside each cut (docs/mixed.md).
 
     Raises
     ------
@@ -153,6 +156,7 @@ class ProfileOptions:
     blocks: str = None
     block_form: str = None
     charge_flow: str = "rightward"
+    disentangle: bool = False
 
     def __post_init__(self):
         from ._measure import renyi_orders
@@ -196,6 +200,9 @@ class ProfileOptions:
         if self.threads is not None:
             put("threads", _integer(self.threads, "threads", 1))
         self._check_charges(put)
+        if not isinstance(self.disentangle, bool):
+            raise ValueError(f"{option_label('disentangle')} must be True or False, found "
+                             f"{self.disentangle!r}")
 
     def _check_charges(self, put):
         from ._blocksparse import FORMS

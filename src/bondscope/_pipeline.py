@@ -90,6 +90,12 @@ def _charge_kernel(src, opts, tick):
     return result, src.bond_dims if src.kind == "mps" else None
 
 
+def _mixed_kernel(src, opts, tick):
+    from ._kernels.mixedprofile import mixed_spectra
+
+    return mixed_spectra(src, opts, tick), src.bond_dims
+
+
 def _bound_charges(src, opts):
     if hasattr(src, "blocks"):
         return src.charges
@@ -104,6 +110,8 @@ def _bound_charges(src, opts):
 KERNELS = {
     "mps": (_chain_kernel, lambda src: 2 * src.sites - 1),
     "state-vector": (_amplitude_kernel, lambda src: src.sites - 1),
+    "density-matrix": (_mixed_kernel, lambda src: 4 * src.sites - 2),
+    "purified": (_mixed_kernel, lambda src: 5 * src.sites - 3),
 }
 # with local charges (or a block-sparse source): charge-resolved spectra
 CHARGE_KERNELS = {
@@ -179,7 +187,9 @@ def profile(source, options=None, *, progress=False, **kwargs):
     with open_any(source, opts) as src:
         route = _route(src, opts)
         charged = opts.charges is not None or hasattr(src, "blocks")
-        check_memory(estimate(src, route, opts.truncating, charged), opts.max_memory)
+        _check_kind(src, opts, charged)
+        check_memory(estimate(src, route, opts.truncating, charged, opts.disentangle),
+                     opts.max_memory)
         kernel, steps = (CHARGE_KERNELS if charged else KERNELS)[src.kind]
         if route is not None:
             opts = opts.replace(route=route)
@@ -188,6 +198,18 @@ def profile(source, options=None, *, progress=False, **kwargs):
         _warn_norm(src, result.norm)
         doc = _document(src, opts, result, bonds)
     return Profile(doc)
+
+
+def _check_kind(src, opts, charged):
+    """Options that do not apply to this kind of source (ValueError)."""
+    from ._options import option_label
+
+    if opts.disentangle and src.kind != "purified":
+        raise ValueError(f"{option_label('disentangle')} applies to purifications (axes "
+                         f"left,phys,ancilla,right); {src.name} is a {src.kind}")
+    if charged and src.kind not in CHARGE_KERNELS:
+        raise ValueError(f"{option_label('charges')} is not available for a {src.kind} "
+                         f"({src.name}); profile without charges")
 
 
 def _warn_norm(src, norm):
@@ -228,6 +250,10 @@ def _document(src, opts, result, bonds):
         from ._kernels.sectors import sector_document
 
         doc["charges"] = sector_document(result, _bound_charges(src, opts), opts, cuts)
+    if hasattr(result, "renyi2"):
+        from ._kernels.mixedprofile import mixed_document
+
+        mixed_document(doc, cuts, result, src, opts)
     doc["cuts"] = cuts
     return doc
 
@@ -267,14 +293,14 @@ def inspect(source, options=None, **kwargs):
         if isinstance(source, (str, os.PathLike)):
             info["file_bytes"] = Path(source).stat().st_size
         route = _route(src, opts)
-        if src.kind == "mps":
+        if src.kind != "state-vector":
             info["bond_dims"] = src.bond_dims
             info["max_bond_dim"] = max(src.bond_dims)
             info["axes"] = ",".join(src.axes)
             info["site_labels"] = [src.labels[0], src.labels[-1]]
         if route is not None:
             info["route"] = route
-        info["estimate"] = estimate(src, route, opts.truncating,
-                                    opts.charges is not None).to_dict()
+        info["estimate"] = estimate(src, route, opts.truncating, opts.charges is not None,
+                                    opts.disentangle).to_dict()
         info["available_memory"] = available_memory()
     return info

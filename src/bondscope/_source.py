@@ -11,22 +11,26 @@ import numpy as np
 
 from ._errors import CheckpointError
 
-__all__ = ["ChainSource", "AmplitudeSource", "AXIS_WORDS", "parse_axes", "chain_from_arrays",
-           "amplitudes_from_array", "compute_dtype", "numeric_dtype"]
+__all__ = ["ChainSource", "AmplitudeSource", "AXIS_WORDS", "WORD_SETS", "parse_axes",
+           "chain_from_arrays", "amplitudes_from_array", "compute_dtype", "numeric_dtype"]
 
 AXIS_WORDS = ("left", "phys", "right")
+# pure states, density matrices (bondscope._mixed) and purifications
+WORD_SETS = (AXIS_WORDS, ("left", "ket", "bra", "right"), ("left", "phys", "ancilla", "right"))
+_WORD_HINT = ("use a permutation of left,phys,right (a pure state), left,ket,bra,right (a "
+              "density matrix) or left,phys,ancilla,right (a purification)")
 
 
 def parse_axes(text):
-    """'left,phys,right' (any permutation) -> tuple of words."""
+    """'left,phys,right' (any permutation, or of a set in WORD_SETS) -> tuple of words."""
     words = tuple(w.strip().lower() for w in text.split(",")) if isinstance(text, str) \
         else tuple(text)
     for w in words:
-        if w not in AXIS_WORDS:
-            raise ValueError(f"unknown axis word {w!r} in axes {','.join(words)}; "
-                             "use a permutation of left,phys,right")
-    if sorted(words) != sorted(AXIS_WORDS):
-        raise ValueError(f"axes {','.join(words)} is not a permutation of left,phys,right")
+        if not any(w in ws for ws in WORD_SETS):
+            raise ValueError(f"unknown axis word {w!r} in axes {','.join(words)}; {_WORD_HINT}")
+    if not any(sorted(words) == sorted(ws) for ws in WORD_SETS):
+        raise ValueError(f"axes {','.join(words)} is not a permutation of one word set; "
+                         f"{_WORD_HINT}")
     return words
 
 
@@ -96,6 +100,10 @@ def resolve_axes(shapes, labels, axes=None, where="chain"):
                               "least 2 sites to have a cut")
     if axes is not None:
         words = parse_axes(axes)
+        if len(words) != 3:
+            raise CheckpointError(f"{where}: axes {','.join(words)} name four axes but the site "
+                                  f"tensors have rank {max(len(s) for s in shapes)}; use "
+                                  "left,phys,right")
         problem = _chain_problem(shapes, labels, words)
         if problem:
             raise CheckpointError(f"{where}: {problem}")
@@ -280,6 +288,10 @@ def chain_from_arrays(tensors, axes=None, precision="promote"):
     if isinstance(tensors, np.ndarray) or not len(tensors):
         raise TypeError("site tensors must be a non-empty list of arrays")
     arrays = [_array(t, f"site {i}") for i, t in enumerate(tensors)]
+    from ._mixed import is_mixed_family, mixed_from_arrays
+
+    if is_mixed_family([a.shape for a in arrays]):
+        return mixed_from_arrays(arrays, axes, precision)
     dtype = np.result_type(*arrays)
     if dtype.kind not in "fc":
         dtype = np.dtype(np.float64)
