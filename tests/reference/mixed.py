@@ -168,3 +168,63 @@ def gaussian_renyi2(corr, sites):
     nu = scipy.linalg.eigvalsh(corr[np.ix_(sites, sites)])
     nu = np.clip(nu, 0, 1)
     return float(-np.log(nu ** 2 + (1 - nu) ** 2).sum())
+
+
+def ancilla_gate(tensors, j, u):
+    """Apply a unitary u (D_j D_j+1 square) to the ancillas of sites j, j+1 of a purification.
+
+    The two sites are merged, rotated and split again by an exact SVD (no
+    truncation beyond rounding), so the physical state is unchanged (HJW).
+    """
+    out = list(tensors)
+    a, b = out[j], out[j + 1]
+    t = np.einsum("lpar,rqbs->lpaqbs", a, b)
+    l, d1, a1, d2, a2, r = t.shape
+    t = np.einsum("xyab,lpaqbs->lpxqys", u.reshape(a1, a2, a1, a2), t)
+    uu, s, vh = np.linalg.svd(t.reshape(l * d1 * a1, d2 * a2 * r), full_matrices=False)
+    keep = max(1, int(np.count_nonzero(s > 1e-14 * s[0])))
+    out[j] = uu[:, :keep].reshape(l, d1, a1, keep)
+    out[j + 1] = (s[:keep, None] * vh[:keep]).reshape(keep, d2, a2, r)
+    return out
+
+
+def haar_unitary(rng, n):
+    """Haar-random n x n unitary (QR of a complex Gaussian matrix with the phases fixed;
+    Mezzadri, Notices AMS 54, 592 (2007))."""
+    z = rng.standard_normal((n, n)) + 1j * rng.standard_normal((n, n))
+    q, r = np.linalg.qr(z)
+    return q * (np.diagonal(r) / np.abs(np.diagonal(r)))
+
+
+def dense_from_mpo(mpo):
+    """The dense operator (prod d, prod d) of MPO site tensors (left, ket, bra, right)."""
+    t = mpo[0]
+    for w in mpo[1:]:
+        t = np.tensordot(t, w, ([t.ndim - 1], [0]))
+    t = t.reshape(t.shape[1:-1])
+    n = len(mpo)
+    kets, bras = list(range(0, 2 * n, 2)), list(range(1, 2 * n, 2))
+    d = prod(w.shape[1] for w in mpo)
+    return t.transpose(kets + bras).reshape(d, d)
+
+
+def pure_mpo(tensors):
+    """|psi><psi| as an MPO (left, ket, bra, right) from MPS site tensors (left, phys, right)."""
+    out = []
+    for a in tensors:
+        w = np.einsum("lpr,mqs->lmpqrs", a, a.conj())
+        l, m, p, q, r, s = w.shape
+        out.append(w.reshape(l * m, p, q, r * s))
+    return out
+
+
+def jordan_wigner(L):
+    """Dense annihilators c_j = (prod_{k<j} Z_k) s-_j with s- = |0><1| (occupied = 1)."""
+    z, lower, eye = np.diag([1.0, -1.0]), np.array([[0.0, 1.0], [0.0, 0.0]]), np.eye(2)
+    ops = []
+    for j in range(L):
+        m = np.ones((1, 1))
+        for k in range(L):
+            m = np.kron(m, z if k < j else lower if k == j else eye)
+        ops.append(m)
+    return ops
