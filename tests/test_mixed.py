@@ -9,21 +9,21 @@ entanglement of purification >= I(A:B)/2 (Terhal, Horodecki, Leung, DiVincenzo,
 J. Math. Phys. 43, 4286 (2002)).
 """
 
-from functools import lru_cache
+from functools import cache, lru_cache
 
 import numpy as np
 import pytest
-
-import bondscope
 from builders import random_chain
 from reference import mixed as ref
 from reference import spin
+
+import bondscope
 
 DM, PUR = "left,ket,bra,right", "left,phys,ancilla,right"
 LN2 = np.log(2.0)
 
 
-@lru_cache(maxsize=None)
+@cache
 def thermal(model, L, beta):
     H = {"ising": lambda: spin.tfim(L, 1.0), "xx": lambda: spin.xx(L),
          "heisenberg": lambda: spin.xxz(L, 1.0)}[model]()

@@ -270,6 +270,12 @@ def _pick(f, path, state, tensors, local_dim, axes, precision):
                                   else f"{path}: {cand.problem}")
         return _chain_source(f, path, cand, precision)
     cands, broken = scan(f, local_dim)
+    if axes is not None and broken:
+        # families that need the axes to be read (rank-4 mixed states)
+        retried = [_chain_candidate(f, c.spec, dict(zip(c.labels, c.datasets)), axes)
+                   for c in broken]
+        cands += [c for c in retried if not c.problem]
+        broken = [c for c in retried if c.problem]
     if not cands and broken:
         problem = broken[0].problem
         raise CheckpointError(f"{problem}; or name another layout with --state / --tensors"

@@ -11,9 +11,9 @@ Which words apply is found from, in order:
 2. an ``axes`` attribute (comma-separated words) on the first site dataset or
    on the group holding the family;
 3. a ``kind`` attribute ``"density-matrix"`` there: the two bond axes are the
-   ones that chain (with 1 at the open ends); of the other two the first
-   stored is read as ket (the entropies of rho and rho^T agree, so the choice
-   cannot change a result).
+   ones that chain (with 1 at the open ends), left,ket,bra,right itself when
+   it chains; of the other two the first stored is read as ket (the
+   entropies of rho and rho^T agree, so the choice cannot change a result).
 
 A purification has no shape-only rule (phys and ancilla may have the same
 size), so without an ``axes`` option or attribute a rank-4 family is refused
@@ -99,8 +99,9 @@ def _from_kind(shapes, labels, where):
         if order.index("ket") < order.index("bra") and len(order) == rank \
                 and _problem(shapes, labels, order) is None:
             fits.append(order)
-    if len(fits) == 1:
-        return fits[0]
+    if len(fits) == 1 or MIXED_WORDS["density-matrix"] in fits:
+        return MIXED_WORDS["density-matrix"] if MIXED_WORDS["density-matrix"] in fits \
+            else fits[0]
     if not fits:
         raise CheckpointError(f"{where}: marked kind 'density-matrix' but no axis order makes "
                               "the bonds chain; " + _ASK)

@@ -89,14 +89,19 @@ def _dm_sweeps(src, store, tick):
         store.put(f"s{i}", np.array([lt, lg]))
         tick()
     t = np.ones(1, dtype=src.compute_dtype)
+    ta = np.ones(1)
     g = h = np.ones((1, 1), dtype=src.compute_dtype)
-    lt = lg = lh = 0.0
+    lt = lta = lg = lh = 0.0
     quads = []
     for i in range(n):
         w = src.tensor4(i)
         a, k, _, b = w.shape
-        t, s = _scaled(t @ np.einsum("lkkr->lr", w))
+        traced = np.einsum("lkkr->lr", w)
+        t, s = _scaled(t @ traced)
         lt += s
+        # the same product in magnitudes: the scale of Tr rho's rounding error
+        ta, s = _scaled(ta @ np.einsum("lkkr->lr", np.abs(w)))
+        lta += s
         g, s = _scaled(_gram_left(g, w.reshape(a, k * k, b)))
         lg += s
         hw = (h @ w.transpose(0, 2, 1, 3).reshape(a, -1)).reshape(a * k * k, b)
@@ -108,45 +113,47 @@ def _dm_sweeps(src, store, tick):
             quads.append(((tr.conj() @ g @ tr).real, lg + 2 * ltr,
                           (t.conj() @ gr @ t).real, lgr + 2 * lt))
         tick()
-    total = (complex(t[0]), lt)
+    total = (complex(t[0]), lt, float(ta[0]), lta)
     hs, trsq = (float(g[0, 0].real), lg), (complex(h[0, 0]), lh)
     return quads, total, hs, trsq
 
 
 def _dm_renyi2(src, store, tick):
     """Density matrix: Tr rho_A^2 from the left Gram G_A and the right trace vector."""
-    quads, (tr, ltr), (hs, lhs), (sq, lsq) = _dm_sweeps(src, store, tick)
+    quads, (tr, ltr, tabs, ltabs), (hs, lhs), (sq, lsq) = _dm_sweeps(src, store, tick)
     chi = max(max(s[0], s[3]) for s in src.shapes4)
     d2 = max(s[1] * s[2] for s in src.shapes4)
     u = float(np.finfo(src.compute_dtype).eps)
     n = src.sites
-    step_t, step_g = _SAFETY * u * n * chi * d2, _SAFETY * u * n * chi * d2 * 2
+    gamma = _SAFETY * u * n * chi * d2
     if not hs > 0:
         raise CheckpointError(f"{src.name}: the operator is zero (||rho||_2 = 0); expected a "
                               "density matrix")
     defect = math.sqrt(max(0.0, 2.0 - 2.0 * (sq * math.exp(lsq - lhs)).real / hs))
-    floor = math.sqrt(2 * step_g / hs)
-    if defect > max(HERMITIAN_TOLERANCE, 10 * floor):
+    if defect > max(HERMITIAN_TOLERANCE, 10 * math.sqrt(4 * gamma / hs)):
         raise CheckpointError(f"{src.name}: the operator is not Hermitian (||rho - rho^dagger|| "
                               f"/ ||rho|| = {defect:.3g}); expected a density matrix with axes "
                               f"{','.join(src.axes)} (is it a purification, "
                               "left,phys,ancilla,right?)")
-    # Tr rho against its rounding floor: ||t_A|| ||t_B|| = 1 after scaling
-    if abs(tr.imag) > 10 * step_t + 1e-12 * abs(tr) and abs(tr.imag) > abs(tr.real) * 1e-8:
-        raise CheckpointError(f"{src.name}: Tr rho = {tr.real:.6g}{tr.imag:+.3g}j is not real; "
-                              "expected a density matrix")
-    if not tr.real > step_t:
-        raise CheckpointError(f"{src.name}: Tr rho = {tr.real * math.exp(ltr):.6g} is "
-                              f"{'zero' if abs(tr.real) <= step_t else 'negative'} (to rounding); "
-                              "a density matrix needs a positive trace")
-    return (*_assemble(quads, (tr.real, ltr), (hs, lhs), step_g, step_t, src.name), defect)
+    # |fl(Tr rho) - Tr rho| <= gamma * (the product in magnitudes) (Higham, section 3.5)
+    log_floor = math.log(gamma * tabs) + ltabs
+    size = abs(tr.real)
+    if size == 0 or math.log(size) + ltr <= log_floor:
+        raise CheckpointError(f"{src.name}: Tr rho is zero to rounding (|Tr rho| <= "
+                              f"{math.exp(log_floor):.3g}); a density matrix needs a positive "
+                              "trace")
+    if tr.real < 0:
+        raise CheckpointError(f"{src.name}: Tr rho = {-math.exp(math.log(size) + ltr):.6g} is "
+                              "negative; a density matrix needs a positive trace")
+    rel_t = math.exp(log_floor - math.log(size) - ltr)
+    return (*_assemble(quads, (size, ltr), (hs, lhs), 2 * gamma, rel_t, src.name), defect)
 
 
-def _assemble(quads, trace, square, step_q, step_t, name):
-    """Entropies and error bounds from the per-cut scaled quadratic forms."""
+def _assemble(quads, trace, square, step_q, rel_t, name):
+    """Entropies and error bounds from the per-cut scaled quadratic forms; ``rel_t`` is the
+    relative rounding bound of the trace."""
     tr, ltr = trace
     log_tr = math.log(tr) + ltr
-    rel_t = step_t / tr
     left, right, errors = [], [], []
     for qa, la, qb, lb in quads:
         sa = -(math.log(max(qa, 1e-300)) + la - 2 * log_tr)
@@ -229,9 +236,9 @@ def _purified_renyi2(src, store, tick):
     dd = max(s[1] * s[2] for s in src.shapes4)
     u = float(np.finfo(src.compute_dtype).eps)
     step_q = _SAFETY * u * n * 4 * chi * dd
-    step_t = _SAFETY * u * n * chi * dd
+    rel_t = _SAFETY * u * n * chi * dd / norm2[0]
     quads = [(qa, la, qb, lb) for (qa, la), (qb, lb) in zip(lefts, rights)]
-    return (*_assemble(quads, norm2, square, step_q, step_t, src.name), None)
+    return (*_assemble(quads, norm2, square, step_q, rel_t, src.name), None)
 
 
 def renyi2_sweeps(src, *, scratch=None, tick=None):
