@@ -89,38 +89,39 @@ def _dm_sweeps(src, store, tick):
         store.put(f"s{i}", np.array([lt, lg]))
         tick()
     t = np.ones(1, dtype=src.compute_dtype)
-    ta = np.ones(1)
     g = h = np.ones((1, 1), dtype=src.compute_dtype)
-    lt = lta = lg = lh = 0.0
-    quads = []
+    lt = lg = lh = 0.0
+    quads, trace_terms = [], []
     for i in range(n):
         w = src.tensor4(i)
         a, k, _, b = w.shape
         traced = np.einsum("lkkr->lr", w)
+        before = lt
         t, s = _scaled(t @ traced)
         lt += s
-        # the same product in magnitudes: the scale of Tr rho's rounding error
-        ta, s = _scaled(ta @ np.einsum("lkkr->lr", np.abs(w)))
-        lta += s
         g, s = _scaled(_gram_left(g, w.reshape(a, k * k, b)))
         lg += s
         hw = (h @ w.transpose(0, 2, 1, 3).reshape(a, -1)).reshape(a * k * k, b)
         h, s = _scaled(w.reshape(a * k * k, b).T @ hw)
         lh += s
+        ltr = 0.0
         if i < n - 1:
             tr, gr = store.pop(f"t{i + 1}"), store.pop(f"g{i + 1}")
             ltr, lgr = store.pop(f"s{i + 1}")
             quads.append(((tr.conj() @ g @ tr).real, lg + 2 * ltr,
                           (t.conj() @ gr @ t).real, lgr + 2 * lt))
+        # this step's rounding, carried to Tr rho by the right trace vector (unit norms)
+        trace_terms.append(before + math.log(max(np.linalg.norm(traced), 1e-300)) + ltr)
         tick()
-    total = (complex(t[0]), lt, float(ta[0]), lta)
+    top = max(trace_terms)
+    total = (complex(t[0]), lt, math.log(sum(math.exp(x - top) for x in trace_terms)) + top)
     hs, trsq = (float(g[0, 0].real), lg), (complex(h[0, 0]), lh)
     return quads, total, hs, trsq
 
 
 def _dm_renyi2(src, store, tick):
     """Density matrix: Tr rho_A^2 from the left Gram G_A and the right trace vector."""
-    quads, (tr, ltr, tabs, ltabs), (hs, lhs), (sq, lsq) = _dm_sweeps(src, store, tick)
+    quads, (tr, ltr, lscale), (hs, lhs), (sq, lsq) = _dm_sweeps(src, store, tick)
     chi = max(max(s[0], s[3]) for s in src.shapes4)
     d2 = max(s[1] * s[2] for s in src.shapes4)
     u = float(np.finfo(src.compute_dtype).eps)
@@ -135,8 +136,9 @@ def _dm_renyi2(src, store, tick):
                               f"/ ||rho|| = {defect:.3g}); expected a density matrix with axes "
                               f"{','.join(src.axes)} (is it a purification, "
                               "left,phys,ancilla,right?)")
-    # |fl(Tr rho) - Tr rho| <= gamma * (the product in magnitudes) (Higham, section 3.5)
-    log_floor = math.log(gamma * tabs) + ltabs
+    # first order: |fl(Tr rho) - Tr rho| <= gamma sum_i ||t_A,i|| ||Tr W_i|| ||t_B,i+1||
+    # (the normwise bound on products, Higham, section 3.5, carried by the exact rest)
+    log_floor = math.log(gamma) + lscale
     size = abs(tr.real)
     if size == 0 or math.log(size) + ltr <= log_floor:
         raise CheckpointError(f"{src.name}: Tr rho is zero to rounding (|Tr rho| <= "
