@@ -110,8 +110,10 @@ def _dm_sweeps(src, store, tick):
             ltr, lgr = store.pop(f"s{i + 1}")
             quads.append(((tr.conj() @ g @ tr).real, lg + 2 * ltr,
                           (t.conj() @ gr @ t).real, lgr + 2 * lt))
-        # this step's rounding, carried to Tr rho by the right trace vector (unit norms)
-        trace_terms.append(before + math.log(max(np.linalg.norm(traced), 1e-300)) + ltr)
+        # this step's rounding (the partial trace's terms in magnitude), carried to Tr rho
+        # by the right trace vector (unit norms)
+        size = np.linalg.norm(np.einsum("lkkr->lr", np.abs(w)))
+        trace_terms.append(before + math.log(max(size, 1e-300)) + ltr)
         tick()
     top = max(trace_terms)
     total = (complex(t[0]), lt, math.log(sum(math.exp(x - top) for x in trace_terms)) + top)
@@ -136,7 +138,7 @@ def _dm_renyi2(src, store, tick):
                               f"/ ||rho|| = {defect:.3g}); expected a density matrix with axes "
                               f"{','.join(src.axes)} (is it a purification, "
                               "left,phys,ancilla,right?)")
-    # first order: |fl(Tr rho) - Tr rho| <= gamma sum_i ||t_A,i|| ||Tr W_i|| ||t_B,i+1||
+    # first order: |fl(Tr rho) - Tr rho| <= gamma sum_i ||t_A,i|| ||Tr |W_i| || ||t_B,i+1||
     # (the normwise bound on products, Higham, section 3.5, carried by the exact rest)
     log_floor = math.log(gamma) + lscale
     size = abs(tr.real)
