@@ -156,27 +156,37 @@ def test_pure_states(kind, dtype):
     assert p["purity"] == pytest.approx(1.0, abs=1e-12)
 
 
-def _scrambled_product(rng, L, cut):
-    """A product mixed state purified site by site, then a random gate on the ancillas
-    beside ``cut``: its purification entropy there is > 0, the physical state a product."""
+def _scrambled_product(rng, L, cuts):
+    """A product mixed state purified site by site, then random gates on the ancillas
+    beside each of ``cuts``: its purification entropy there is > 0, the physical state a
+    product."""
     tensors = []
     for _ in range(L):
         a = rng.standard_normal((2, 2)) + 1j * rng.standard_normal((2, 2))
         r = a @ a.conj().T
         e, v = np.linalg.eigh(r / np.trace(r).real)
         tensors.append(((v * np.sqrt(e)) @ v.conj().T).reshape(1, 2, 2, 1))
-    return ref.ancilla_gate(tensors, cut - 1, ref.haar_unitary(rng, 4))
+    for cut in cuts:
+        tensors = ref.ancilla_gate(tensors, cut - 1, ref.haar_unitary(rng, 4))
+    return tensors
 
 
-@pytest.mark.parametrize("cut", [1, 2, 3])
-def test_disentangling_a_scrambled_product_state(cut):
-    """A gate on the two ancillas beside a cut is undone: cut entropy back to ~0, the
-    physical I_2 = 0 (product state), never above the start anywhere."""
-    rng = np.random.default_rng(20 + cut)
-    p = bondscope.profile(_scrambled_product(rng, 4, cut), axes=PUR, disentangle=True)
-    assert p.entropies[cut - 1] > 0.05
+@pytest.mark.parametrize("cuts", [
+    (1,),        # gate beside the first cut
+    (2,),        # beside the middle cut
+    (3,),        # beside the last cut
+    (1, 3),      # two gates at once, on disjoint ancilla pairs
+])
+def test_disentangling_a_scrambled_product_state(cuts):
+    """Gates on the two ancillas beside a cut are undone: cut entropy back to ~0 in one
+    purification, the physical I_2 = 0 (product state), never above the start anywhere."""
+    rng = np.random.default_rng(20 + sum(cuts))
+    p = bondscope.profile(_scrambled_product(rng, 4, cuts), axes=PUR, disentangle=True)
     dis = p.column("disentangled_entropy")
-    assert dis[cut - 1] < 1e-8
+    for cut in cuts:
+        assert p.entropies[cut - 1] > 0.05
+    np.testing.assert_allclose(dis, 0, atol=1e-8)
+    assert np.all(p.column("disentangled_rank", int) == 1)
     assert np.all(dis <= p.entropies)
     np.testing.assert_allclose(p.column("mutual_information_2"), 0, atol=1e-10)
     assert p["disentangle"]["converged_cuts"] == 3

@@ -16,14 +16,14 @@ import math
 import numpy as np
 
 from .._measure import resolution_floor
-from .chain import lq_step, qr_step
 from .linalg import svdvals
-from .store import BondStore
 
 __all__ = ["disentangle_cuts", "optimise_cut", "disentangle_cost", "Disentangled",
-           "MAX_ITERATIONS", "TOLERANCE"]
+           "MAX_ITERATIONS", "TOLERANCE", "RANDOM_STARTS", "SWEEPS"]
 
 MAX_ITERATIONS = 200
+# most back-and-forth sweeps over the cuts
+SWEEPS = 4
 # random starting unitaries per cut besides the identity
 RANDOM_STARTS = 2
 # change of the Rényi-2 entropy (nats) between iterations that counts as converged
@@ -38,7 +38,8 @@ class Disentangled:
     values : ndarray
         Normalised Schmidt values of the best purification found, descending.
     floor : float
-        Their resolution floor.
+        Their resolution floor: the SVD's, or sqrt(:data:`TOLERANCE`) times the
+        largest value when higher (weights the optimisation does not resolve).
     start : float
         von Neumann entropy (nats) of the stored purification at the cut.
     iterations : int
@@ -117,8 +118,8 @@ def optimise_cut(theta, max_iterations=MAX_ITERATIONS, tol=TOLERANCE, starts=RAN
 
     Returns
     -------
-    values : ndarray
-        Normalised Schmidt values at the middle cut of the best U theta found.
+    rotated : ndarray, shape (k d1 D1, d2 D2 m)
+        The best U theta found, as the matrix of its middle cut.
     iterations : int
         Summed over the starts.
     converged : bool
@@ -164,76 +165,114 @@ def optimise_cut(theta, max_iterations=MAX_ITERATIONS, tol=TOLERANCE, starts=RAN
         total += found[2]
         if best is None or found[0] < best[0]:
             best = found
-    values = svdvals(state(best[1]))
-    return values / np.linalg.norm(values), total, best[3]
+    return state(best[1]), total, best[3]
 
 
-def disentangle_cuts(src, *, scratch=None, tick=None):
-    """Disentangled Schmidt spectra at every cut of a purification.
+def _right_canonical(tensors):
+    """Bring site tensors (left, m, right) to right-canonical form in place (QR from the
+    right); returns the norm, divided out of the first site."""
+    for i in range(len(tensors) - 1, 0, -1):
+        a = tensors[i]
+        q, r = np.linalg.qr(a.reshape(a.shape[0], -1).T)
+        tensors[i] = q.T.reshape(-1, a.shape[1], a.shape[2])
+        tensors[i - 1] = np.tensordot(tensors[i - 1], r.T, ([2], [0]))
+    norm = float(np.linalg.norm(tensors[0]))
+    tensors[0] = tensors[0] / norm
+    return norm
+
+
+def _visit(tensors, c, rightward, shapes, first):
+    """Optimise the gate of cut c (between sites c-1 and c, the centre on one of them),
+    apply it and move the centre across; returns (values, floor, iterations, converged)."""
+    a, b = tensors[c - 1], tensors[c]
+    _, d1, a1, _ = shapes[c - 1]
+    _, d2, a2, _ = shapes[c]
+    k, m = a.shape[0], b.shape[2]
+    theta = np.tensordot(a, b, ([2], [0])).reshape(k, d1, a1, d2, a2, m)
+    starts = RANDOM_STARTS if first else 0
+    x, its, ok = optimise_cut(theta, starts=starts, seed=c)
+    u, s, vh = np.linalg.svd(x, full_matrices=False)
+    norm = float(np.linalg.norm(s))
+    s = s / norm
+    keep = max(1, int(np.count_nonzero(s > resolution_floor(s, "svd", min(x.shape)))))
+    # weights below the objective's tolerance are not pursued by the optimisation
+    floor = max(resolution_floor(s, "svd", min(x.shape)), math.sqrt(TOLERANCE) * s[0])
+    u, s, vh = u[:, :keep], s[:keep], vh[:keep]
+    if rightward:
+        tensors[c - 1] = u.reshape(k, d1 * a1, keep)
+        tensors[c] = (s[:, None] * vh).reshape(keep, d2 * a2, m)
+    else:
+        tensors[c - 1] = (u * s).reshape(k, d1 * a1, keep)
+        tensors[c] = vh.reshape(keep, d2 * a2, m)
+    return s, floor, its, ok
+
+
+def disentangle_cuts(src, *, tick=None, sweeps=SWEEPS, tol=TOLERANCE):
+    """Disentangled Schmidt spectra at every cut of one purification, optimised in sweeps.
 
     Parameters
     ----------
     src : MixedSource
         kind "purified".
-    scratch : str, optional
-        Directory for spilled bond matrices.
     tick : callable, optional
-        Called once per site tensor processed.
+        Called once per cut visited.
+    sweeps : int
+        Most back-and-forth sweeps.
+    tol : float
+        Stop when a sweep lowers the summed cut entropies by less than this (nats).
 
     Returns
     -------
-    list of Disentangled
+    cuts : list of Disentangled
+    sweeps_done : int
 
     Notes
     -----
-    A right-to-left sweep stores the LQ bond matrices L_i and a left-to-right
-    sweep carries the QR factor R_i (as in
-    :func:`bondscope._kernels.chain.chain_spectra`), so the two sites beside
-    cut i, R_{i-1} A_{i-1} A_i L_{i+1}, sit between orthonormal outer bases and
-    their middle cut has the state's Schmidt values; :func:`optimise_cut`
-    then works on that chi x (d D)^2 x chi block alone.  Each cut is optimised
-    from the stored purification, independently of the others (a gate for
-    one cut overlaps its neighbours' ancillas).
+    The purification is brought to right-canonical form and swept like a
+    two-site update: at each cut the two sites beside it, between orthonormal
+    outer bases, get the ancilla unitary of :func:`optimise_cut` (random
+    starts on the first visit, the identity after), are split by an SVD that
+    keeps the values above the resolution floor (exact to rounding), and the
+    orthogonality centre moves on.  A gate straddles only its own cut; gates
+    elsewhere act within one side of it and leave its entropy alone, so every
+    cut's entropy can only fall from visit to visit, and the result is one
+    purification of the same state (the HJW freedom, composed over the
+    sweeps) with those entropies at every cut at once.
+
+    Memory: all site tensors, as the bonds evolve (at most d D times the
+    stored bond at a cut in the worst case).  Time per visit: the optimisation
+    (see :func:`optimise_cut`) and one SVD of the (k d D) x (d D m) block.
     """
     from .parallel import locked
 
     tick = locked(tick)
     n = src.sites
-    one = np.ones((1, 1), dtype=src.compute_dtype)
-    out = []
-    with BondStore(scratch) as store:
-        env = one
-        for i in range(n - 1, 1, -1):
-            env = lq_step(src.tensor(i), env)
-            store.put(f"L{i}", env)
+    shapes = src.shapes4
+    tensors = [src.tensor(i) for i in range(n)]
+    _right_canonical(tensors)
+    found = [None] * (n - 1)
+    starts = [None] * (n - 1)
+    total = [0] * (n - 1)
+    done = 0
+    previous = None
+    for sweep in range(sweeps):
+        order = [(c, True) for c in range(1, n)] + [(c, False) for c in range(n - 1, 0, -1)]
+        for c, rightward in order:
+            if starts[c - 1] is None:
+                x = np.tensordot(tensors[c - 1], tensors[c], ([2], [0]))
+                v = svdvals(x.reshape(x.shape[0] * x.shape[1], -1))
+                starts[c - 1] = _entropies((v / np.linalg.norm(v)) ** 2)[0]
+            s, floor, its, ok = _visit(tensors, c, rightward, shapes, found[c - 1] is None)
+            total[c - 1] += its
+            found[c - 1] = (s, floor, ok)
             tick()
-        r = one
-        a = src.tensor(0)
-        for i in range(n - 1):
-            b = src.tensor(i + 1)
-            right = store.pop(f"L{i + 2}") if i + 2 <= n - 1 else one
-            theta = _two_site(r, a, b, right)
-            k, m = theta.shape[0], theta.shape[-1]
-            _, d1, a1, _ = src.shapes4[i]
-            _, d2, a2, _ = src.shapes4[i + 1]
-            theta = theta.reshape(k, d1, a1, d2, a2, m)
-            start = svdvals(theta.reshape(k * d1 * a1, -1).copy())
-            start = start / np.linalg.norm(start)
-            values, its, ok = optimise_cut(theta, seed=i)
-            size = min(k * d1 * a1, d2 * a2 * m)
-            out.append(Disentangled(values, resolution_floor(values, "svd", size),
-                                    _entropies(start ** 2)[0], its, ok))
-            r = qr_step(r, a)
-            a = b
-            tick()
-    return out
-
-
-def _two_site(r, a, b, right):
-    """R A_i A_{i+1} L as an array (k, d D, d D, m)."""
-    left = (r @ a.reshape(a.shape[0], -1)).reshape(-1, a.shape[2])
-    rest = (b.reshape(-1, b.shape[2]) @ right).reshape(b.shape[0], -1)
-    return (left @ rest).reshape(r.shape[0], a.shape[1], b.shape[1], right.shape[1])
+        done = sweep + 1
+        now = sum(_entropies(f[0] ** 2)[0] for f in found)
+        if previous is not None and previous - now < tol:
+            break
+        previous = now
+    return [Disentangled(s, floor, start, its, ok)
+            for (s, floor, ok), start, its in zip(found, starts, total)], done
 
 
 def disentangle_cost(src):
@@ -244,5 +283,6 @@ def disentangle_cost(src):
     for (k, d1, a1, _), (_, d2, a2, m) in zip(src.shapes4, src.shapes4[1:]):
         kl, kr = k * d1 * a1, d2 * a2 * m
         memory = max(memory, 6 * kl * kr * item + 2 * min(kl, kr) ** 2 * item)
-        flops += (1 + RANDOM_STARTS) * MAX_ITERATIONS * (6 * kl * kr * min(kl, kr) + 10 * min(kl, kr) ** 3)
+        flops += (RANDOM_STARTS + 2 * SWEEPS) * MAX_ITERATIONS * (
+            6 * kl * kr * min(kl, kr) + 10 * min(kl, kr) ** 3)
     return memory, flops

@@ -48,7 +48,7 @@ def mixed_spectra(src, opts, tick):
     if opts.disentangle:
         from .disentangle import disentangle_cuts
 
-        result.disentangled = disentangle_cuts(src, scratch=opts.scratch, tick=tick)
+        result.disentangled, result.disentangle_sweeps = disentangle_cuts(src, tick=tick)
     return result
 
 
@@ -103,12 +103,12 @@ def mixed_document(doc, cuts, result, src, opts):
         return
     for cut, found, spectrum in zip(cuts, result.disentangled, result.spectra):
         cut.update(_disentangled_fields(cut, found, spectrum, opts))
-    from .disentangle import MAX_ITERATIONS, RANDOM_STARTS, TOLERANCE
+    from .disentangle import MAX_ITERATIONS, RANDOM_STARTS, SWEEPS, TOLERANCE
 
     doc["disentangle"] = {
-        "window": "ancillas of the two sites beside each cut, each cut on its own",
+        "window": "one purification: a gate on the two ancillas beside every cut, in sweeps",
         "objective": "renyi-2 by iterated polar decompositions",
         "random_starts": RANDOM_STARTS, "max_iterations": MAX_ITERATIONS,
-        "tolerance": TOLERANCE,
+        "tolerance": TOLERANCE, "sweeps": result.disentangle_sweeps, "max_sweeps": SWEEPS,
         "converged_cuts": sum(bool(c["disentangle_converged"]) for c in cuts),
         "cuts": len(cuts)}
