@@ -9,7 +9,7 @@ entanglement of purification >= I(A:B)/2 (Terhal, Horodecki, Leung, DiVincenzo,
 J. Math. Phys. 43, 4286 (2002)).
 """
 
-from functools import cache, lru_cache
+from functools import cache
 
 import numpy as np
 import pytest

@@ -197,3 +197,25 @@ def test_batch_profiles_mixed_checkpoints(tmp_path):
         doc = json.loads((Path(summary.out) / row["profile"]).read_text())
         np.testing.assert_allclose([c["renyi2_left"] for c in doc["cuts"]],
                                    _reference_blocks(), atol=1e-10)
+
+
+def test_mixed_figure_and_report(tmp_path):
+    """The mixed figure draws S_2, I_2 and the cut entropies; the report shows it for a
+    batch of mixed checkpoints; a pure profile is refused by the figure."""
+    pytest.importorskip("matplotlib")
+    p = bondscope.profile(_purification(), axes="left,phys,ancilla,right", disentangle=True)
+    fig = bondscope.plot([p], kind="mixed", output=tmp_path / "m.png")
+    physical, stored = fig.axes[:2]
+    np.testing.assert_allclose(physical.lines[0].get_ydata(), p.column("renyi2_left"))
+    np.testing.assert_allclose(stored.lines[1].get_ydata(), p.column("disentangled_entropy"))
+    assert (tmp_path / "m.png").stat().st_size > 0
+    pure = bondscope.profile([np.ones((1, 2, 2)) / 2, np.ones((2, 2, 1)) / 2])
+    with pytest.raises(CheckpointError, match="not a mixed state"):
+        bondscope.plot([pure], kind="mixed")
+    scan = tmp_path / "scan"
+    scan.mkdir()
+    _write(scan / "a.h5", _mpo(), DM_WORDS, attrs={"kind": "density-matrix"})
+    bondscope.run_batch(scan, tmp_path / "out", workers=1)
+    page = bondscope.write_report(tmp_path / "out", tmp_path / "r.html").read_text()
+    assert "mutual information I_2 of the physical state" in page
+    assert "not drawn" not in page.split("mutual information I_2")[0][-400:]

@@ -10,7 +10,7 @@ from .._options import ProfileOptions
 from .._text import entropy_unit
 from ._gather import collect
 from ._names import visible
-from ._style import cut_label, curve_look, marker_size, new_figure, style
+from ._style import curve_look, cut_label, marker_size, new_figure, style
 
 __all__ = ["mixed_figure", "is_mixed"]
 
