@@ -220,13 +220,16 @@ def open_source(path, *, state=None, tensors=None, local_dim=None, axes=None,
         Local dimension(s) of a 1-D state vector (default 2).
     axes : str or tuple, optional
         Stored axis order of the site tensors, a permutation of left,phys,right.
-        Inferred from how the bonds chain when omitted.
+        Inferred from how the bonds chain when omitted.  Rank-4 tensors: a
+        permutation of left,ket,bra,right (density matrix) or
+        left,phys,ancilla,right (purification), or found from stored
+        attributes (:mod:`bondscope._mixed`).
     precision : {"promote", "stored"}
         Profile single-precision data in double precision (default) or as stored.
 
     Returns
     -------
-    ChainSource or AmplitudeSource
+    ChainSource, MixedSource or AmplitudeSource
         Holds the file open; call ``close()`` (or use it as a context manager).
 
     Raises

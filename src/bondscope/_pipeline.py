@@ -137,7 +137,9 @@ def profile(source, options=None, *, progress=False, **kwargs):
     source : str, Path, ndarray or list of ndarray
         An HDF5 checkpoint; a state vector (1-D of length prod(d_i), or shaped
         (d_1, ..., d_N)); or site tensors shaped (left, phys, right) (or in the
-        order ``axes``), with bonds of 1 (or rank 2) at the ends.
+        order ``axes``), with bonds of 1 (or rank 2) at the ends; or rank-4 site
+        tensors of a mixed state with ``axes`` left,ket,bra,right (a density
+        matrix) or left,phys,ancilla,right (a purification), see docs/mixed.md.
     options : ProfileOptions, optional
         Layout, measures and resources; keywords override its fields.
     progress : bool
@@ -146,7 +148,7 @@ def profile(source, options=None, *, progress=False, **kwargs):
         Any field of :class:`~bondscope.ProfileOptions`: ``state``, ``tensors``,
         ``local_dim``, ``axes``, ``renyi``, ``base``, ``spectrum``, ``bond_dim``,
         ``weight_tol``, ``route``, ``precision``, ``scratch``, ``max_memory``,
-        ``threads``.
+        ``threads``, ``charges``, ``disentangle`` (purifications).
 
     Returns
     -------
@@ -156,7 +158,8 @@ def profile(source, options=None, *, progress=False, **kwargs):
     ------
     CheckpointError
         The checkpoint or arrays are not a valid state (see :func:`open_source`),
-        NaN/Inf values, zero norm.
+        NaN/Inf values, zero norm; a rank-4 family that is not a density matrix
+        (not Hermitian, trace zero or negative) or a purification of zero norm.
     MemoryLimitError
         The pre-flight estimate exceeds the memory limit; nothing is read.
     TypeError
@@ -182,6 +185,13 @@ def profile(source, options=None, *, progress=False, **kwargs):
     >>> p = bondscope.profile(bell, base=2)
     >>> p.entropies.round(12).tolist(), p.schmidt_ranks.tolist()
     ([1.0], [2])
+
+    A density matrix as an MPO: two qubits at infinite temperature.
+
+    >>> rho = [np.eye(2).reshape(1, 2, 2, 1) / 2] * 2
+    >>> m = bondscope.profile(rho, axes="left,ket,bra,right", base=2)
+    >>> m["purity"], m.column("renyi2_left").round(12).tolist()
+    (0.25, [1.0])
     """
     opts = ProfileOptions.from_kwargs(options, **kwargs)
     with open_any(source, opts) as src:
