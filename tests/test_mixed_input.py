@@ -219,3 +219,10 @@ def test_mixed_figure_and_report(tmp_path):
     page = bondscope.write_report(tmp_path / "out", tmp_path / "r.html").read_text()
     assert "mutual information I_2 of the physical state" in page
     assert "not drawn" not in page.split("mutual information I_2")[0][-400:]
+
+
+def test_preflight_refuses_a_purification_that_does_not_fit():
+    """The replica environment (chi^4) is in the estimate: a limit below it refuses the
+    work before any tensor is read."""
+    with pytest.raises(bondscope.MemoryLimitError, match="max-memory"):
+        bondscope.profile(_purification(), axes="left,phys,ancilla,right", max_memory=2 ** 16)
