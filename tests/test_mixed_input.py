@@ -222,7 +222,15 @@ def test_mixed_figure_and_report(tmp_path):
 
 
 def test_preflight_refuses_a_purification_that_does_not_fit():
-    """The replica environment (chi^4) is in the estimate: a limit below it refuses the
-    work before any tensor is read."""
+    """The replica environment (chi^4) is in the estimate: a limit that the same tensors
+    read as an MPS (ancilla merged into the physical leg) fit under refuses the
+    purification before any tensor is read."""
+    pur = _purification()
+    merged = [t.reshape(t.shape[0], -1, t.shape[3]) for t in pur]
+    as_mps = bondscope.inspect(merged)["estimate"]["memory_bytes"]
+    mixed = bondscope.inspect(pur, axes="left,phys,ancilla,right")["estimate"]["memory_bytes"]
+    assert mixed > as_mps
+    limit = (as_mps + mixed) // 2
+    bondscope.profile(merged, max_memory=limit)
     with pytest.raises(bondscope.MemoryLimitError, match="max-memory"):
-        bondscope.profile(_purification(), axes="left,phys,ancilla,right", max_memory=2 ** 16)
+        bondscope.profile(pur, axes="left,phys,ancilla,right", max_memory=limit)
