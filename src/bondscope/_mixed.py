@@ -201,6 +201,8 @@ class MixedSource(ChainSource):
         self.labels = list(labels)
         self.name = name
         self._read = read
+        # no power-of-two rescaling: the Rényi-2 sweeps rescale every step themselves
+        self._shifts = {}
 
     @property
     def local_dims(self):
