@@ -25,9 +25,9 @@ from itertools import permutations
 import numpy as np
 
 from ._errors import CheckpointError
-from ._source import ChainSource, compute_dtype, parse_axes
+from ._source import ChainSource, parse_axes
 
-__all__ = ["MixedSource", "MIXED_WORDS", "mixed_axes", "mixed_from_arrays", "stored_hint",
+__all__ = ["MixedSource", "MIXED_WORDS", "mixed_axes", "stored_hint",
            "is_mixed_family", "kind_of"]
 
 MIXED_WORDS = {"density-matrix": ("left", "ket", "bra", "right"),
@@ -185,24 +185,14 @@ class MixedSource(ChainSource):
         Ancilla (purified) or bra (density-matrix) dimension per site.
     """
 
-    def __init__(self, shapes, dtype, read, labels, axes, name, precision="promote"):
-        self.stored_shapes = [tuple(int(x) for x in s) for s in shapes]
-        self.axes = tuple(axes)
+    def _canonical_shapes(self):
+        """Merged (left, d * d', right) per site; keeps the four-axis shapes in ``shapes4``."""
         self.kind = kind_of(self.axes)
         canon = MIXED_WORDS[self.kind]
-        n = len(shapes)
-        self.shapes4 = []
-        for i, s in enumerate(self.stored_shapes):
-            named = _named(s, self.axes, i == 0, i == n - 1)
-            self.shapes4.append(tuple(named[w] for w in canon))
-        self.shapes = [(a, p * q, b) for a, p, q, b in self.shapes4]
-        self.dtype = np.dtype(dtype)
-        self.compute_dtype = compute_dtype(self.dtype, precision)
-        self.labels = list(labels)
-        self.name = name
-        self._read = read
-        # no power-of-two rescaling: the Rényi-2 sweeps rescale every step themselves
-        self._shifts = {}
+        n = len(self.stored_shapes)
+        self.shapes4 = [tuple(_named(s, self.axes, i == 0, i == n - 1)[w] for w in canon)
+                        for i, s in enumerate(self.stored_shapes)]
+        return [(a, p * q, b) for a, p, q, b in self.shapes4]
 
     @property
     def local_dims(self):
@@ -214,12 +204,7 @@ class MixedSource(ChainSource):
 
     def tensor4(self, i):
         """Site i shaped (left, ket, bra, right) / (left, phys, ancilla, right)."""
-        raw = np.asarray(self._read(i))
-        if raw.shape != self.stored_shapes[i]:
-            raise CheckpointError(f"{self.name}: site {self.labels[i]} read with shape "
-                                  f"{raw.shape}, its metadata said {self.stored_shapes[i]}")
-        if not np.isfinite(raw).all():
-            raise CheckpointError(f"{self.name}: site {self.labels[i]} holds NaN or Inf values")
+        raw = self._raw(i)
         canon = MIXED_WORDS[self.kind]
         words = self.axes if raw.ndim == 4 else \
             [w for w in self.axes if w != ("left" if i == 0 else "right")]
@@ -227,16 +212,6 @@ class MixedSource(ChainSource):
         return np.ascontiguousarray(a.reshape(self.shapes4[i]), dtype=self.compute_dtype)
 
     def tensor(self, i):
-        """Site i with the two middle axes merged: (left, d * d', right)."""
+        """Site i with the two middle axes merged: (left, d * d', right); unlike an MPS
+        site never rescaled (the Rényi-2 sweeps rescale every step themselves)."""
         return self.tensor4(i).reshape(self.shapes[i])
-
-
-def mixed_from_arrays(arrays, axes=None, precision="promote"):
-    """A MixedSource over in-memory rank-4 site tensors (``axes`` required)."""
-    dtype = np.result_type(*arrays)
-    if dtype.kind not in "fc":
-        dtype = np.dtype(np.float64)
-    labels = list(range(len(arrays)))
-    shapes = [a.shape for a in arrays]
-    words = mixed_axes(shapes, labels, axes, where="site tensors")
-    return MixedSource(shapes, dtype, arrays.__getitem__, labels, words, "<arrays>", precision)

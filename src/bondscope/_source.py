@@ -175,15 +175,29 @@ class ChainSource(_Held):
     def __init__(self, shapes, dtype, read, labels, axes, name, precision="promote"):
         self.stored_shapes = [tuple(int(x) for x in s) for s in shapes]
         self.axes = tuple(axes)
-        n = len(shapes)
-        self.shapes = [_canonical(s, self.axes, i == 0, i == n - 1)
-                       for i, s in enumerate(self.stored_shapes)]
+        self.shapes = self._canonical_shapes()
         self.dtype = np.dtype(dtype)
         self.compute_dtype = compute_dtype(self.dtype, precision)
         self.labels = list(labels)
         self.name = name
         self._read = read
         self._shifts = {}
+
+    def _canonical_shapes(self):
+        """(left, phys, right) per site from the stored shapes and axis words."""
+        n = len(self.stored_shapes)
+        return [_canonical(s, self.axes, i == 0, i == n - 1)
+                for i, s in enumerate(self.stored_shapes)]
+
+    def _raw(self, i):
+        """Site i as stored, its shape and values checked."""
+        raw = np.asarray(self._read(i))
+        if raw.shape != self.stored_shapes[i]:
+            raise CheckpointError(f"{self.name}: site {self.labels[i]} read with shape "
+                                  f"{raw.shape}, its metadata said {self.stored_shapes[i]}")
+        if not np.isfinite(raw).all():
+            raise CheckpointError(f"{self.name}: site {self.labels[i]} holds NaN or Inf values")
+        return raw
 
     @property
     def scale_exponent(self):
@@ -209,12 +223,7 @@ class ChainSource(_Held):
 
     def tensor(self, i):
         """Site i as an array shaped (left, phys, right) in the compute dtype."""
-        raw = np.asarray(self._read(i))
-        if raw.shape != self.stored_shapes[i]:
-            raise CheckpointError(f"{self.name}: site {self.labels[i]} read with shape "
-                                  f"{raw.shape}, its metadata said {self.stored_shapes[i]}")
-        if not np.isfinite(raw).all():
-            raise CheckpointError(f"{self.name}: site {self.labels[i]} holds NaN or Inf values")
+        raw = self._raw(i)
         words = self.axes if raw.ndim == 3 else \
             [w for w in self.axes if w != ("left" if i == 0 else "right")]
         a = raw.transpose([words.index(w) for w in AXIS_WORDS if w in words])
@@ -322,21 +331,22 @@ def _array(a, where):
 
 
 def chain_from_arrays(tensors, axes=None, precision="promote"):
-    """A ChainSource over in-memory site tensors (list of arrays)."""
+    """A ChainSource (or, for rank-4 tensors, a MixedSource) over in-memory site tensors."""
     if isinstance(tensors, np.ndarray) or not len(tensors):
         raise TypeError("site tensors must be a non-empty list of arrays")
     arrays = [_array(t, f"site {i}") for i, t in enumerate(tensors)]
-    from ._mixed import is_mixed_family, mixed_from_arrays
-
-    if is_mixed_family([a.shape for a in arrays]):
-        return mixed_from_arrays(arrays, axes, precision)
     dtype = np.result_type(*arrays)
     if dtype.kind not in "fc":
         dtype = np.dtype(np.float64)
     labels = list(range(len(arrays)))
     shapes = [a.shape for a in arrays]
-    words = resolve_axes(shapes, labels, axes, where="site tensors")
-    return ChainSource(shapes, dtype, arrays.__getitem__, labels, words, "<arrays>", precision)
+    from ._mixed import MixedSource, is_mixed_family, mixed_axes
+
+    # rank-4 tensors: a density matrix or a purification (bondscope._mixed)
+    resolve, kind = (mixed_axes, MixedSource) if is_mixed_family(shapes) else \
+        (resolve_axes, ChainSource)
+    words = resolve(shapes, labels, axes, where="site tensors")
+    return kind(shapes, dtype, arrays.__getitem__, labels, words, "<arrays>", precision)
 
 
 def amplitudes_from_array(state, local_dim=None, precision="promote"):

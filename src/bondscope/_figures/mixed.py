@@ -40,6 +40,7 @@ def mixed_figure(sources, *, title=None, options=None, **profiling):
         checkpoints (profiled with the profiling options; add
         ``disentangle=True`` for the disentangled curve of a purification).
     title : str, optional
+        Figure title (default "Mixed state along the chain"; "" for none).
     %(profiling)s
 
     %(figure_returns)s
@@ -47,7 +48,7 @@ def mixed_figure(sources, *, title=None, options=None, **profiling):
     Raises
     ------
     CheckpointError
-        A profile without the mixed-state fields (a pure state).
+        A source is a pure state (its profile has no ``renyi2_left``).
 
     Notes
     -----
