@@ -183,6 +183,11 @@ def test_cli_profile_and_refusal(tmp_path):
     r = _cli("profile", bad)
     assert r.returncode == 3 and r.stderr.startswith("error:") and "negative" in r.stderr
     assert len(r.stderr.strip().splitlines()) == 1
+    pytest.importorskip("matplotlib")
+    r = _cli("plot", pur, "--kind", "mixed", "--axes", "left,phys,ancilla,right",
+             "--disentangle", "-o", tmp_path / "m.svg")
+    assert r.returncode == 0, r.stderr
+    assert "after disentangling" in (tmp_path / "m.svg").read_text()
 
 
 def test_batch_profiles_mixed_checkpoints(tmp_path):
