@@ -49,6 +49,13 @@ class Renyi2:
         self.trace, self.hermiticity = trace, hermiticity
 
 
+def _unit(src):
+    """Unit roundoff of the work: the compute dtype's, or the stored data's when coarser
+    (float32 checkpoints carry only their own precision)."""
+    stored = src.dtype if src.dtype.kind in "fc" else np.dtype(np.float64)
+    return max(float(np.finfo(src.compute_dtype).eps), float(np.finfo(stored).eps))
+
+
 def _scaled(x):
     """(x / ||x||, ln ||x||); a zero x gives (x, -inf)."""
     n = float(np.linalg.norm(x))
@@ -126,7 +133,7 @@ def _dm_renyi2(src, store, tick):
     quads, (tr, ltr, lscale), (hs, lhs), (sq, lsq) = _dm_sweeps(src, store, tick)
     chi = max(max(s[0], s[3]) for s in src.shapes4)
     d2 = max(s[1] * s[2] for s in src.shapes4)
-    u = float(np.finfo(src.compute_dtype).eps)
+    u = _unit(src)
     n = src.sites
     gamma = _SAFETY * u * n * chi * d2
     if not hs > 0:
@@ -238,7 +245,7 @@ def _purified_renyi2(src, store, tick):
         tick()
     chi = max(max(s[0], s[3]) for s in src.shapes4)
     dd = max(s[1] * s[2] for s in src.shapes4)
-    u = float(np.finfo(src.compute_dtype).eps)
+    u = _unit(src)
     step_q = _SAFETY * u * n * 4 * chi * dd
     rel_t = _SAFETY * u * n * chi * dd / norm2[0]
     quads = [(qa, la, qb, lb) for (qa, la), (qb, lb) in zip(lefts, rights)]
@@ -291,7 +298,8 @@ def renyi2_sweeps(src, *, scratch=None, tick=None):
 
     Error bounds are first-order rounding estimates (common practice): every
     environment is scaled to unit norm, each of the N transfer steps adds a
-    relative error of about eps times its inner dimension (the bound on
+    relative error of about eps (of the compute dtype, or of the stored data
+    when coarser, as for float32 checkpoints) times its inner dimension (the bound on
     floating-point products, Higham, *Accuracy and Stability of Numerical
     Algorithms*, 2nd ed., section 3.5), and a block purity far below the
     environment's norm loses that many digits; the bound grows accordingly.
