@@ -189,7 +189,7 @@ def test_disentangling_a_scrambled_product_state(cuts):
     assert np.all(p.column("disentangled_rank", int) == 1)
     assert np.all(dis <= p.entropies)
     np.testing.assert_allclose(p.column("mutual_information_2"), 0, atol=1e-10)
-    assert p["disentangle"]["converged_cuts"] == 3
+    assert p["disentangle"]["converged_cuts"] == 3 and p["disentangle"]["sweeps_converged"]
 
 
 @pytest.mark.parametrize("model,L,beta", [("heisenberg", 5, 3.0), ("ising", 5, 1.0)])

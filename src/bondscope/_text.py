@@ -82,8 +82,9 @@ def profile_table(profile):
                      f"{profile['renyi2_state']:.10f}")
     if profile.get("disentangle"):
         dis = profile["disentangle"]
-        lines.append(f"disentangling: {dis['converged_cuts']} of {dis['cuts']} cuts converged "
-                     f"({dis['window']})")
+        settled = "settled" if dis.get("sweeps_converged") else "not settled"
+        lines.append(f"disentangling: {dis['converged_cuts']} of {dis['cuts']} cuts converged, "
+                     f"{dis.get('sweeps', '?')} sweep(s), {settled} ({dis['window']})")
     charges = profile.get("charges")
     if charges:
         moduli = ",".join(map(str, charges["moduli"]))

@@ -227,6 +227,8 @@ def disentangle_cuts(src, *, tick=None, sweeps=SWEEPS, tol=TOLERANCE):
     -------
     cuts : list of Disentangled
     sweeps_done : int
+    settled : bool
+        The last sweep lowered the summed entropies by less than ``tol``.
 
     Notes
     -----
@@ -255,7 +257,7 @@ def disentangle_cuts(src, *, tick=None, sweeps=SWEEPS, tol=TOLERANCE):
     found = [None] * (n - 1)
     starts = [None] * (n - 1)
     total = [0] * (n - 1)
-    done = 0
+    done, settled = 0, False
     previous = None
     for sweep in range(sweeps):
         order = [(c, True) for c in range(1, n)] + [(c, False) for c in range(n - 1, 0, -1)]
@@ -271,10 +273,11 @@ def disentangle_cuts(src, *, tick=None, sweeps=SWEEPS, tol=TOLERANCE):
         done = sweep + 1
         now = sum(_entropies(f[0] ** 2)[0] for f in found)
         if previous is not None and previous - now < tol:
+            settled = True
             break
         previous = now
     return [Disentangled(s, floor, start, its, ok)
-            for (s, floor, ok), start, its in zip(found, starts, total)], done
+            for (s, floor, ok), start, its in zip(found, starts, total)], done, settled
 
 
 def disentangle_cost(src):

@@ -48,7 +48,8 @@ def mixed_spectra(src, opts, tick):
     if opts.disentangle:
         from .disentangle import disentangle_cuts
 
-        result.disentangled, result.disentangle_sweeps = disentangle_cuts(src, tick=tick)
+        result.disentangled, result.disentangle_sweeps, result.disentangle_settled = \
+            disentangle_cuts(src, tick=tick)
     return result
 
 
@@ -110,5 +111,6 @@ def mixed_document(doc, cuts, result, src, opts):
         "objective": "renyi-2 by iterated polar decompositions",
         "random_starts": RANDOM_STARTS, "max_iterations": MAX_ITERATIONS,
         "tolerance": TOLERANCE, "sweeps": result.disentangle_sweeps, "max_sweeps": SWEEPS,
+        "sweeps_converged": result.disentangle_settled,
         "converged_cuts": sum(bool(c["disentangle_converged"]) for c in cuts),
         "cuts": len(cuts)}
