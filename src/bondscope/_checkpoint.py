@@ -25,8 +25,9 @@ class Candidate:
 
     @property
     def flag(self):
-        return f"--state {self.spec}" if self.kind == "state-vector" else \
-            f"--tensors '{self.spec}'"
+        if self.kind == "state-vector":
+            return f"--state {self.spec}"
+        return f"--tensors '{self.spec}'" + (" --unit-cell" if self.kind == "unit-cell" else "")
 
 
 def _open(path):
@@ -129,20 +130,27 @@ def _numbering_problem(numbers, pattern):
     return None
 
 
-def _chain_candidate(f, pattern, hits, axes):
+def _chain_candidate(f, pattern, hits, axes, unit_cell=None):
     numbers = list(hits)
     problem = _numbering_problem(numbers, pattern)
     cand = Candidate("mps", pattern, [hits[n] for n in numbers], numbers, problem)
     if problem is None:
-        try:
-            shapes = [f[p].shape for p in cand.datasets]
-            cand.axes = resolve_axes(shapes, numbers, axes, where=f"{f.filename}: {pattern}")
-        except CheckpointError as exc:
-            cand.problem = str(exc)
+        shapes = [f[p].shape for p in cand.datasets]
+        where = f"{f.filename}: {pattern}"
+        if unit_cell is not True:
+            try:
+                cand.axes = resolve_axes(shapes, numbers, axes, where=where)
+                return cand
+            except CheckpointError as exc:
+                cand.problem = str(exc)
+        if unit_cell is not False:
+            from ._cellsource import cell_candidate
+
+            cell_candidate(cand, shapes, numbers, axes, where, unit_cell)
     return cand
 
 
-def scan(f, local_dim=None):
+def scan(f, local_dim=None, unit_cell=None):
     """All plausible layouts in an open file, from metadata alone.
 
     Returns
@@ -164,9 +172,9 @@ def scan(f, local_dim=None):
             patterns.setdefault(pat, {})[int(m.group())] = p
     found, broken, members = [], [], set()
     for pat, hits in patterns.items():
-        if len(hits) < 2:
+        if len(hits) < 2 and not _single_cell(f, hits):
             continue
-        cand = _chain_candidate(f, pat, dict(sorted(hits.items())), None)
+        cand = _chain_candidate(f, pat, dict(sorted(hits.items())), None, unit_cell)
         (broken if cand.problem else found).append(cand)
         members.update(cand.datasets)
     for p in paths:
@@ -190,6 +198,13 @@ def scan(f, local_dim=None):
     return found, broken
 
 
+def _single_cell(f, hits):
+    """A one-site family is a candidate only as a unit cell (see _cellsource)."""
+    from ._cellsource import looks_like_cell
+
+    return any(looks_like_cell([f[p].shape]) for p in hits.values())
+
+
 def _describe(cands):
     shown = "; ".join(f"{c.kind} {c.spec} ({c.flag})" for c in cands[:_LISTED])
     more = f"; and {len(cands) - _LISTED} more" if len(cands) > _LISTED else ""
@@ -197,7 +212,7 @@ def _describe(cands):
 
 
 def open_source(path, *, state=None, tensors=None, local_dim=None, axes=None,
-                precision="promote"):
+                precision="promote", unit_cell=None):
     """Open a checkpoint read-only and return its validated source.
 
     Parameters
@@ -216,10 +231,14 @@ def open_source(path, *, state=None, tensors=None, local_dim=None, axes=None,
         Inferred from how the bonds chain when omitted.
     precision : {"promote", "stored"}
         Profile single-precision data in double precision (default) or as stored.
+    unit_cell : bool, optional
+        True: read the tensor family as the unit cell of an infinite chain;
+        False: never; None (default): a family that is not an open chain is
+        a cell when its first left bond equals its last right bond and is not 1.
 
     Returns
     -------
-    ChainSource or AmplitudeSource
+    ChainSource, CellSource or AmplitudeSource
         Holds the file open; call ``close()`` (or use it as a context manager).
 
     Raises
@@ -243,7 +262,7 @@ def open_source(path, *, state=None, tensors=None, local_dim=None, axes=None,
         parse_axes(axes)
     f = _open(path)
     try:
-        src = _pick(f, Path(path), state, tensors, local_dim, axes, precision)
+        src = _pick(f, Path(path), state, tensors, local_dim, axes, precision, unit_cell)
     except BaseException:
         f.close()
         raise
@@ -251,18 +270,18 @@ def open_source(path, *, state=None, tensors=None, local_dim=None, axes=None,
     return src
 
 
-def _pick(f, path, state, tensors, local_dim, axes, precision):
+def _pick(f, path, state, tensors, local_dim, axes, precision, unit_cell=None):
     if state is not None:
         name = state if state.startswith("/") else "/" + state
         return _state_source(f, path, name, local_dim, precision)
     if tensors is not None:
         hits = _family(f, tensors)
-        cand = _chain_candidate(f, tensors, hits, axes)
+        cand = _chain_candidate(f, tensors, hits, axes, unit_cell)
         if cand.problem:
             raise CheckpointError(cand.problem if cand.problem.startswith(str(f.filename))
                                   else f"{path}: {cand.problem}")
         return _chain_source(f, path, cand, precision)
-    cands, broken = scan(f, local_dim)
+    cands, broken = scan(f, local_dim, unit_cell)
     if not cands and broken:
         problem = broken[0].problem
         raise CheckpointError(f"{problem}; or name another layout with --state / --tensors"
@@ -278,7 +297,8 @@ def _pick(f, path, state, tensors, local_dim, axes, precision):
     if cand.kind == "state-vector":
         return _state_source(f, path, cand.spec, local_dim, precision)
     if axes is not None:
-        cand = _chain_candidate(f, cand.spec, dict(zip(cand.labels, cand.datasets)), axes)
+        cand = _chain_candidate(f, cand.spec, dict(zip(cand.labels, cand.datasets)), axes,
+                                unit_cell)
         if cand.problem:
             raise CheckpointError(cand.problem)
     return _chain_source(f, path, cand, precision)
@@ -310,5 +330,10 @@ def _chain_source(f, path, cand, precision):
     dtypes = [_stored_dtype(d, f"{path}:{d.name}") for d in dsets]
     dtype = np.result_type(*dtypes)
     readers = [_reader(d, t) for d, t in zip(dsets, dtypes)]
+    if cand.kind == "unit-cell":
+        from ._cellsource import CellSource
+
+        return CellSource([d.shape for d in dsets], dtype, lambda i: readers[i](), cand.labels,
+                          cand.axes, f"{path}:{cand.spec}", precision, cand.detection)
     return ChainSource([d.shape for d in dsets], dtype, lambda i: readers[i](), cand.labels,
                        cand.axes, f"{path}:{cand.spec}", precision)

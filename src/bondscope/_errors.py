@@ -1,6 +1,6 @@
 """Error types raised at bondscope's public boundary."""
 
-__all__ = ["CheckpointError", "MemoryLimitError", "EXIT_USAGE", "EXIT_CHECKPOINT", "EXIT_MEMORY",
+__all__ = ["CheckpointError", "ConvergenceError", "MemoryLimitError", "EXIT_USAGE", "EXIT_CHECKPOINT", "EXIT_MEMORY",
            "EXIT_FAILED", "one_line"]
 
 EXIT_USAGE = 2
@@ -15,6 +15,10 @@ class CheckpointError(ValueError):
     The message names the file, dataset or site and says what was expected,
     what was found and, where there is one, how to fix it.
     """
+
+
+class ConvergenceError(CheckpointError):
+    """An iterative solver did not converge on a checkpoint's state (no number is reported)."""
 
 
 class MemoryLimitError(MemoryError):

@@ -70,6 +70,10 @@ FLAGS = {
              "(default 2)")),
     "axes": ("layout", ("--axes",), dict(
         metavar="ORDER", help="axis order of the site tensors, a permutation of left,phys,right")),
+    "unit_cell": ("layout", ("--unit-cell",), dict(
+        action="store_const", const=True, default=None,
+        help="read the site tensors as the unit cell of an infinite chain (detected without "
+             "this flag when the first left bond equals the last right bond and is not 1)")),
     # block-sparse checkpoints
     "blocks": ("layout", ("--blocks",), dict(
         metavar="PATTERN", help="block-sparse MPS: site groups, with a {site} placeholder, "
@@ -118,6 +122,9 @@ FLAGS = {
     "threads": ("resources", ("--threads",), dict(
         metavar="N", type=int,
         help="threads for linear algebra (default: BLAS environment or core count)")),
+    "transfer_iterations": ("resources", ("--transfer-iterations",), dict(
+        metavar="N", type=int,
+        help="unit cells: iteration limit of the transfer-matrix eigensolver (default 10 chi^2)")),
     "quiet": ("resources", ("--quiet",), dict(action="store_true",
                                               help="no progress bar or warnings")),
     # scaling fit
@@ -136,10 +143,11 @@ FLAGS = {
         help="decay exponent of the alternating term (default 1, free fermions)")),
 }
 
-LAYOUT_FLAGS = ("state", "tensors", "local_dim", "axes", "blocks", "block_form", "charge_flow")
+LAYOUT_FLAGS = ("state", "tensors", "local_dim", "axes", "unit_cell", "blocks", "block_form",
+                "charge_flow")
 MEASURE_FLAGS = ("renyi", "base", "spectrum", "bond_dim", "weight_tol", "route", "precision",
                  "charges", "modulus")
-RESOURCE_FLAGS = ("max_memory", "scratch", "threads", "quiet")
+RESOURCE_FLAGS = ("max_memory", "scratch", "threads", "transfer_iterations", "quiet")
 FIT_FLAGS = ("boundary", "window", "corrections", "parity_exponent")
 _TITLES = {"layout": "checkpoint layout (auto-detected when omitted)", "measures": "measures",
            "resources": "resources", "fit": "scaling fit"}
