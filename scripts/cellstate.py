@@ -187,7 +187,27 @@ def cell_ground_state(gates, bond_dim, *, steps=(0.1, 0.03, 0.01, 0.003, 0.001),
                     converged = True
                     break
                 snapshot = lams[0]
-    return CellState(tensors, lams, total, converged)
+    return CellState(_normalised(tensors), lams, total, converged)
+
+
+def _normalised(tensors):
+    """The cell scaled so that its transfer matrix's dominant eigenvalue is 1."""
+    from scipy.sparse.linalg import LinearOperator, eigs
+
+    chi = tensors[0].shape[0]
+
+    def apply(v):
+        y = v.reshape(chi, chi)
+        for a in tensors[::-1]:
+            l, d, r = a.shape
+            y = (a.reshape(l * d, r) @ y).reshape(l, d * r) @ a.reshape(l, d * r).conj().T
+        return y.reshape(-1)
+    if chi * chi <= 2:
+        eta = abs(apply(np.eye(chi).reshape(-1))[0])
+    else:
+        op = LinearOperator((chi * chi, chi * chi), matvec=apply, dtype=tensors[0].dtype)
+        eta = abs(eigs(op, k=1, v0=np.eye(chi).reshape(-1), tol=1e-14)[0][0])
+    return [a / eta ** 0.25 for a in tensors]
 
 
 def cell_energy(tensors, h):
