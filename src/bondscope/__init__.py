@@ -47,7 +47,7 @@ MemoryLimitError -- work refused by the pre-flight memory estimate
 ConvergenceError -- an iterative eigensolver did not converge (a CheckpointError)
 UnnormalisedStateWarning -- the stored state was not normalised (it is profiled normalised)
 
-Heavy dependencies (scipy, numba, matplotlib, dask) are imported only when a
+Heavy dependencies (scipy, matplotlib, dask) are imported only when a
 function that needs them runs.
 """
 
