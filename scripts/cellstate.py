@@ -134,7 +134,7 @@ def ising_gates(g):
 
 
 def cell_ground_state(gates, bond_dim, *, steps=(0.1, 0.03, 0.01, 0.003, 0.001), tol=1e-10,
-                      max_steps=20000, cutoff=1e-14, seed=0):
+                      max_steps=20000, cutoff=1e-14, seed=0, start=None):
     """Dominant state of repeated two-site gates on a two-site cell (iTEBD).
 
     Parameters
@@ -155,6 +155,10 @@ def cell_ground_state(gates, bond_dim, *, steps=(0.1, 0.03, 0.01, 0.003, 0.001),
         Schmidt weights at or below this are dropped.
     seed : int
         Seed of the random start state.
+    start : (int, int), optional
+        Start from the product of these local basis states instead (a state
+        of definite charge: gates that conserve a charge then keep the cell
+        in one sector, so it stays injective; a random start mixes sectors).
 
     Returns
     -------
@@ -169,6 +173,8 @@ def cell_ground_state(gates, bond_dim, *, steps=(0.1, 0.03, 0.01, 0.003, 0.001),
     d = gates(steps[0])[0].shape[0]
     rng = np.random.default_rng(seed)
     tensors = [rng.standard_normal((1, d, 1)) for _ in range(2)]
+    if start is not None:
+        tensors = [np.eye(d)[s].reshape(1, d, 1) for s in start]
     lams = [np.ones(1), np.ones(1)]
     total, converged = 0, False
     for dt in steps:

@@ -66,14 +66,16 @@ def part(kind):
                  "g": g, "description": "infinite chain in its paramagnetic phase"})
     return (ROOT / "tests" / "fixtures" / "cells", "xx", XX_DIMS,
             cellstate.trotter_gates(cellstate.xx_bond()), CRITICAL_STEPS, cellstate.xx_bond(),
-            cellstate.xx_energy(), {"model": "XX"})
+            cellstate.xx_energy(), {"model": "XX", "start": "Neel"})
 
 
 def make(kind, dims=None, out=None):
     """Write one part; ``out`` redirects the directory (reproducibility checks)."""
     folder, prefix, all_dims, gates, steps, h, exact, attrs = part(kind)
     for chi in dims or all_dims:
-        run = cellstate.cell_ground_state(gates, chi, steps=steps, max_steps=200000)
+        # a Neel start keeps the particle-number-conserving XX gates at half filling
+        run = cellstate.cell_ground_state(gates, chi, steps=steps, max_steps=200000,
+                                          start=(0, 1) if kind == "xx" else None)
         energy = cellstate.cell_energy(run.tensors, h)
         write_cell(Path(out or folder) / f"{prefix}_chi{chi}.h5", run,
                    {**attrs, "bond_dim": chi, "dt": steps[-1], "energy": energy,

@@ -6,8 +6,6 @@ repeated cells profiled by the validated finite sweep (tests/reference/cells.py)
 """
 
 import math
-import subprocess
-import sys
 import warnings
 
 import h5py
@@ -121,19 +119,18 @@ def test_checkpoint_detection_and_inspect(tmp_path):
     assert quiet_profile(product, unit_cell=True)["correlation_length"] == 0.0
 
 
-def test_cli_profile_and_inspect(tmp_path):
+def test_cli_profile_and_inspect(tmp_path, capsys):
+    from bondscope._cli import main
+
     path = write_cell(tmp_path / "cell.h5", cells.aklt_cell())
-    run = lambda *a: subprocess.run([sys.executable, "-m", "bondscope", *a],
-                                    capture_output=True, text=True, check=False)
-    out = run("inspect", str(path))
-    assert out.returncode == 0 and "detected" in out.stdout, out.stderr
-    out = run("profile", str(path), "--unit-cell", "--json")
-    assert out.returncode == 0, out.stderr
-    assert '"kind": "unit-cell"' in out.stdout
+    assert main(["inspect", str(path)]) == 0
+    assert "detected: first left bond = last right bond != 1" in capsys.readouterr().out
+    assert main(["profile", str(path), "--unit-cell", "--json"]) == 0
+    assert '"kind": "unit-cell"' in capsys.readouterr().out
     bad = write_cell(tmp_path / "ghz.h5", ghz_cell())
-    out = run("profile", str(bad))
-    assert out.returncode == 3 and out.stderr.startswith("error:") and "injective" in out.stderr
-    assert "Traceback" not in out.stderr
+    assert main(["profile", str(bad)]) == 3
+    err = capsys.readouterr().err
+    assert err.startswith("error:") and "injective" in err and err.count("\n") == 1
 
 
 BAD_CASES = [
