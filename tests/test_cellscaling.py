@@ -153,3 +153,14 @@ def test_cells_are_reproducible(tmp_path):
         for n in (0, 1):
             np.testing.assert_allclose(new[f"cell/site_{n}"][()], old[f"cell/site_{n}"][()],
                                        atol=1e-12)
+
+
+def test_batch_and_report_take_cells(tmp_path):
+    # cells go through a batch like any checkpoint; the report says why they are not
+    # given a finite-chain scaling fit
+    files = [str(p) for p in gapped_files()[:2]]
+    summary = quiet(bondscope.run_batch, files, tmp_path / "out", workers=1)
+    assert [r["kind"] for r in summary.rows] == ["unit-cell", "unit-cell"]
+    page = bondscope.write_report(tmp_path / "out", tmp_path / "report.html")
+    text = Path(page).read_text()
+    assert "unit cell of an infinite chain has no finite-size scaling" in text
