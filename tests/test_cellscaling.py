@@ -125,6 +125,17 @@ def test_gapped_cells_against_exact_results():
     assert quiet(bondscope.fit_cell_scaling, gapped_files()).verdict == "gapped"
 
 
+def test_critical_ising_cells_give_c_one_half():
+    # critical transverse-field Ising: c = 1/2 (Calabrese & Cardy 2004) within 0.03 and
+    # within the fit's own error bar; kappa within its error of Pollmann's 2.034
+    files = sorted(CELLS.glob("kp0911_chi*.h5"))
+    res = quiet(bondscope.fit_cell_scaling, files)
+    assert res.verdict == "critical", res.reason
+    assert res.central_charge == pytest.approx(0.5, abs=0.03)
+    assert abs(res.central_charge - 0.5) <= res.central_charge_error
+    assert abs(res.kappa - predicted_kappa(0.5)) <= res.kappa_error
+
+
 def test_cli_fit_plot_and_compare_cells(tmp_path, capsys):
     from bondscope._cli import main
 
