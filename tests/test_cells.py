@@ -146,6 +146,9 @@ BAD_CASES = [
     # NaN in one tensor
     pytest.param([np.full((2, 2, 2), np.nan), np.ones((2, 2, 2))], {},
                  bondscope.CheckpointError, "NaN", id="nan"),
+    # the pre-flight estimate refuses work over the memory limit
+    pytest.param(cells.aklt_cell(), {"max_memory": 1}, bondscope.MemoryLimitError,
+                 "needs about", id="memory"),
     # charges are not implemented for cells
     pytest.param(cells.aklt_cell(), {"charges": "1,0,-1"}, ValueError, "not implemented",
                  id="charges"),

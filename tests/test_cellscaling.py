@@ -129,6 +129,12 @@ def test_critical_ising_cells_give_c_one_half():
     # critical transverse-field Ising: c = 1/2 (Calabrese & Cardy 2004) within 0.03 and
     # within the fit's own error bar; kappa within its error of Pollmann's 2.034
     files = sorted(CELLS.glob("kp0911_chi*.h5"))
+    for path in files:
+        with h5py.File(path, "r") as f:
+            # the self-dual gates at dt = 0.03 are the Ising model up to O(dt^2) ~ 1e-3
+            # (common practice); Pfeuty's exact -4/pi
+            assert float(f.attrs["energy_exact"]) == pytest.approx(-4 / math.pi, abs=1e-12)
+            assert float(f.attrs["energy"]) == pytest.approx(-4 / math.pi, abs=1e-3)
     res = quiet(bondscope.fit_cell_scaling, files)
     assert res.verdict == "critical", res.reason
     assert res.central_charge == pytest.approx(0.5, abs=0.03)

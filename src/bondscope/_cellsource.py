@@ -14,7 +14,7 @@ from itertools import permutations
 import numpy as np
 
 from ._errors import CheckpointError
-from ._source import AXIS_WORDS, ChainSource, numeric_dtype, parse_axes
+from ._source import AXIS_WORDS, ChainSource, array_family, parse_axes
 
 __all__ = [
     "CellSource",
@@ -109,14 +109,7 @@ class CellSource(ChainSource):
 
 def cell_from_arrays(tensors, axes=None, precision="promote", detection="requested"):
     """A CellSource over in-memory site tensors (list of rank-3 arrays)."""
-    arrays = [np.asarray(t) for t in tensors]
-    for i, a in enumerate(arrays):
-        numeric_dtype(a.dtype, f"site {i}")
-    dtype = np.result_type(*arrays)
-    if dtype.kind not in "fc":
-        dtype = np.dtype(np.float64)
-    labels = list(range(len(arrays)))
-    shapes = [a.shape for a in arrays]
+    arrays, dtype, labels, shapes = array_family(tensors)
     words = resolve_cell_axes(shapes, labels, axes, where="site tensors")
     return CellSource(shapes, dtype, arrays.__getitem__, labels, words, "<arrays>", precision,
                       detection)

@@ -313,16 +313,20 @@ def _array(a, where):
     return a
 
 
-def chain_from_arrays(tensors, axes=None, precision="promote"):
-    """A ChainSource over in-memory site tensors (list of arrays)."""
+def array_family(tensors):
+    """(arrays, compute-ready dtype, labels, shapes) of a list of in-memory site tensors."""
     if isinstance(tensors, np.ndarray) or not len(tensors):
         raise TypeError("site tensors must be a non-empty list of arrays")
     arrays = [_array(t, f"site {i}") for i, t in enumerate(tensors)]
     dtype = np.result_type(*arrays)
     if dtype.kind not in "fc":
         dtype = np.dtype(np.float64)
-    labels = list(range(len(arrays)))
-    shapes = [a.shape for a in arrays]
+    return arrays, dtype, list(range(len(arrays))), [a.shape for a in arrays]
+
+
+def chain_from_arrays(tensors, axes=None, precision="promote"):
+    """A ChainSource over in-memory site tensors (list of arrays)."""
+    arrays, dtype, labels, shapes = array_family(tensors)
     words = resolve_axes(shapes, labels, axes, where="site tensors")
     return ChainSource(shapes, dtype, arrays.__getitem__, labels, words, "<arrays>", precision)
 
