@@ -18,7 +18,8 @@ def cellscaling_figure(sources, *, title=None, options=None, **profiling):
     Left panel: each run's mean bond entropy S (nats; the bar spans its
     cell's bond entropies) against ln xi, and the line S = (c/6) ln xi + s0
     of :func:`bondscope._analyses.cellscaling.fit_cell_scaling`.  Right
-    panel: xi against chi on log axes with the fitted power chi^kappa.
+    panel: xi against chi on log axes with the fitted power chi^kappa and
+    (dotted) the power predicted from c.
 
     Parameters
     ----------
@@ -65,6 +66,11 @@ def cellscaling_figure(sources, *, title=None, options=None, **profiling):
         b = np.mean(log_xi - res.kappa * np.log(chi))
         right.loglog(fit_chi, np.exp(b) * fit_chi ** res.kappa, color=INK, lw=1.0,
                      ls=(0, (4, 2)), label=f"ξ ~ χ^κ, κ = {plus_minus(res.kappa, res.kappa_error)}")
+        if res.kappa_predicted is not None:
+            b_pred = np.mean(log_xi - res.kappa_predicted * np.log(chi))
+            right.loglog(fit_chi, np.exp(b_pred) * fit_chi ** res.kappa_predicted, color=INK,
+                         lw=0.8, ls=(0, (1, 2)),
+                         label=f"κ from c: {plus_minus(res.kappa_predicted, res.kappa_predicted_error)}")
         right.set_xlabel("bond dimension χ")
         right.set_ylabel("ξ [sites]")
         right.legend(loc="upper left")
