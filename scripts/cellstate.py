@@ -74,7 +74,9 @@ def xx_bond():
 
 
 def tfim_energy(g):
-    """Exact ground energy per site of the infinite chain: -(1/pi) int_0^pi sqrt(1 + g^2 + 2g cos k).
+    """Exact ground energy per site of the infinite chain.
+
+    -(1/pi) int_0^pi sqrt(1 + g^2 + 2g cos k) dk.
 
     References
     ----------

@@ -11,14 +11,14 @@ import math
 import warnings
 from pathlib import Path
 
+import cellstate
 import h5py
+import make_cells
 import numpy as np
 import pytest
 from scipy.special import ellipk
 
 import bondscope
-import cellstate
-import make_cells
 from bondscope._analyses.cellscaling import predicted_kappa
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -140,6 +140,21 @@ def test_critical_ising_cells_give_c_one_half():
     assert res.central_charge == pytest.approx(0.5, abs=0.03)
     assert abs(res.central_charge - 0.5) <= res.central_charge_error
     assert abs(res.kappa - predicted_kappa(0.5)) <= res.kappa_error
+
+
+def test_xx_cells_give_c_one():
+    # critical XX chain: c = 1 (Calabrese & Cardy 2004) within the fit's own error bar,
+    # which stays below 0.1; kappa within two error bars of Pollmann's 1.344.  The U(1)
+    # sectors make these small-chi cells scatter more than Ising's (measured: 0.95 +- 0.08)
+    files = sorted(XX.glob("xx_chi*.h5"))
+    for path in files:
+        with h5py.File(path, "r") as f:
+            # exact -2/pi; the Trotter step dt = 0.03 leaves O(dt^2) (common practice)
+            assert float(f.attrs["energy"]) == pytest.approx(cellstate.xx_energy(), abs=1e-3)
+    res = quiet(bondscope.fit_cell_scaling, files)
+    assert res.verdict == "critical", res.reason
+    assert abs(res.central_charge - 1.0) <= res.central_charge_error < 0.1
+    assert abs(res.kappa - predicted_kappa(1.0)) <= 2 * res.kappa_error
 
 
 def test_cli_fit_plot_and_compare_cells(tmp_path, capsys):

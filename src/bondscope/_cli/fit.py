@@ -23,7 +23,6 @@ def add_arguments(p):
 
 def run(args):
     from .._analyses.scaling import fit_scaling
-
     from ._cellfit import is_cell_series, read_all, run_cells
 
     overrides = {"spectrum": True} if args.spectrum_report else {}

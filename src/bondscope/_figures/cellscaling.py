@@ -67,10 +67,11 @@ def cellscaling_figure(sources, *, title=None, options=None, **profiling):
         right.loglog(fit_chi, np.exp(b) * fit_chi ** res.kappa, color=INK, lw=1.0,
                      ls=(0, (4, 2)), label=f"ξ ~ χ^κ, κ = {plus_minus(res.kappa, res.kappa_error)}")
         if res.kappa_predicted is not None:
-            b_pred = np.mean(log_xi - res.kappa_predicted * np.log(chi))
-            right.loglog(fit_chi, np.exp(b_pred) * fit_chi ** res.kappa_predicted, color=INK,
-                         lw=0.8, ls=(0, (1, 2)),
-                         label=f"κ from c: {plus_minus(res.kappa_predicted, res.kappa_predicted_error)}")
+            kp = res.kappa_predicted
+            b_pred = np.mean(log_xi - kp * np.log(chi))
+            right.loglog(fit_chi, np.exp(b_pred) * fit_chi ** kp, color=INK, lw=0.8,
+                         ls=(0, (1, 2)),
+                         label=f"κ from c: {plus_minus(kp, res.kappa_predicted_error)}")
         right.set_xlabel("bond dimension χ")
         right.set_ylabel("ξ [sites]")
         right.legend(loc="upper left")
