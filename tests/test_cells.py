@@ -70,6 +70,11 @@ def test_random_cells(bonds, dims, dtype):
     k = len(p["transfer_eigenvalues"])
     np.testing.assert_allclose(p["transfer_eigenvalues"], (w / w[0])[:k], atol=1e-10)
     assert p["correlation_length"] == pytest.approx(-len(dims) / math.log(w[1] / w[0]), rel=1e-8)
+    # Schmidt values between cells from the dense matrix's eigenvectors (numpy eig)
+    ref = cells.dense_outer_schmidt(cell)
+    got = np.asarray(p.cuts[-1]["schmidt_values"])
+    m = min(got.size, np.count_nonzero(ref > 1e-6))
+    np.testing.assert_allclose(got[:m], ref[:m], atol=1e-7)
     # the same state in a scrambled, ill-conditioned, unnormalised gauge: same spectra
     q = quiet_profile(cells.scrambled(cell, rng, scale=3.7), spectrum=True)
     # against the middle of a long finite chain of repeated cells (validated finite sweep)

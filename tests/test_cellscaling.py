@@ -170,6 +170,9 @@ def test_cli_fit_plot_and_compare_cells(tmp_path, capsys):
     code, out = run("plot", "--kind", "cellscaling", *files, "-o", str(tmp_path / "fes.png"),
                     "--quiet")
     assert code == 0 and (tmp_path / "fes.png").stat().st_size > 0, out.err
+    code, out = run("plot", "--kind", "convergence", "--against", "bond", *files, "-o",
+                    str(tmp_path / "conv.png"), "--quiet")
+    assert code == 0 and (tmp_path / "conv.png").stat().st_size > 0, out.err
     code, out = run("compare", *files, "--quiet")
     assert code == 0 and "converged" in out.out, out.err
     code, out = run("fit", files[0], "--quiet")
