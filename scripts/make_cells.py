@@ -5,7 +5,7 @@
 
 What is written
 ---------------
-data/cells/kp0911_chi{8,12,16}.h5
+data/cells/kp0911_chi{8,12,16,24}.h5
     Run "KP-0911" of the fictional Kestrel Point quantum-simulation group:
     the infinite transverse-field Ising chain at its critical field g = 1, as
     two-site cells found by imaginary-time evolution (`cellstate`, the
@@ -14,7 +14,7 @@ data/cells/kp0911_chi{8,12,16}.h5
 data/cells/kp0912_chi{4,6,8,12}.h5
     Run "KP-0912": the same chain in its paramagnetic phase, g = 1.5, whose
     correlation length saturates.
-tests/fixtures/cells/xx_chi{8,12,16,24}.h5
+tests/fixtures/cells/xx_chi{8,12,16,24,32}.h5
     The infinite XX chain (critical, c = 1), for the tests.
 
 Each file holds ``/cell/site_0`` and ``/cell/site_1`` (left, phys, right)
@@ -31,11 +31,11 @@ import h5py
 from threadpoolctl import threadpool_limits
 
 ROOT = Path(__file__).resolve().parent.parent
-CRITICAL_DIMS = (8, 12, 16)
+CRITICAL_DIMS = (8, 12, 16, 24)
 GAPPED_DIMS = (4, 6, 8, 12)
-XX_DIMS = (8, 12, 16, 24)
+XX_DIMS = (8, 12, 16, 24, 32)
 # the self-dual gates keep g = 1 critical at any step; the O(dt) truncation bias of the
-# gate updates sets the last step (central charge within 0.02 at 0.03, measured)
+# gate updates sets the last step (measured: c = 0.497 +- 0.021 over chi 8-24)
 CRITICAL_STEPS = (0.1, 0.03)
 GAPPED_STEPS = (0.1, 0.03, 0.01, 0.003, 0.001)
 GAPPED_FIELD = 1.5
