@@ -29,7 +29,8 @@ __all__ = [
 ]
 
 # bond dimensions up to this build the chi^2 x chi^2 matrix and diagonalise it densely
-DENSE_BOND = 12
+# (the crossover measured by scripts/bench_cells.py, docs/performance.md)
+DENSE_BOND = 10
 # how many leading transfer eigenvalues are reported
 SPECTRUM_COUNT = 6
 
