@@ -17,13 +17,13 @@ from numbers import Integral, Real
 __all__ = ["ProfileOptions", "LAYOUT", "BLOCK_LAYOUT", "MEASURES", "RESOURCES", "RUN_META",
            "option_label"]
 
-LAYOUT = ("state", "tensors", "local_dim", "axes", "complex_parts")
+LAYOUT = ("state", "tensors", "local_dim", "axes", "complex_parts", "unit_cell")
 # block-sparse checkpoints (bondscope._blocksparse)
 BLOCK_LAYOUT = ("blocks", "block_form", "charge_flow")
 MEASURES = ("renyi", "base", "spectrum", "bond_dim", "weight_tol", "route", "precision",
             "charges", "modulus", "disentangle")
 # how a profile is computed, not what it holds (left out of a batch result's record)
-RESOURCES = ("scratch", "max_memory", "threads")
+RESOURCES = ("scratch", "max_memory", "threads", "transfer_iterations")
 # root attribute names of the run metadata (bondscope._runinfo); read afresh, not recorded
 RUN_META = ("time_attr", "bond_dim_attr", "weight_attr")
 ROUTES = ("auto", "gram", "svd")
@@ -128,6 +128,13 @@ class ProfileOptions:
     disentangle : bool
         Purifications: also the cut entropy after optimising ancilla unitaries
         beside each cut (docs/mixed.md).
+    unit_cell : bool, optional
+        Read the site tensors as the unit cell of an infinite chain (True), never
+        (False), or when the bonds close into a cell with a bond other than 1
+        (None, default); see :mod:`bondscope._cellsource`.
+    transfer_iterations : int, optional
+        Unit cells: iteration limit of the transfer-matrix eigensolver
+        (default scipy's, 10 chi^2).
 
     Raises
     ------
@@ -169,6 +176,8 @@ class ProfileOptions:
     bond_dim_attr: str = None
     weight_attr: str = None
     disentangle: bool = False
+    unit_cell: bool = None
+    transfer_iterations: int = None
 
     def __post_init__(self):
         from ._measure import renyi_orders
@@ -215,6 +224,12 @@ class ProfileOptions:
             put("max_memory", _integer(self.max_memory, "max_memory", 1))
         if self.threads is not None:
             put("threads", _integer(self.threads, "threads", 1))
+        if self.unit_cell not in (None, True, False):
+            raise ValueError(f"{option_label('unit_cell')} must be True, False or None, "
+                             f"found {self.unit_cell!r}")
+        if self.transfer_iterations is not None:
+            put("transfer_iterations", _integer(self.transfer_iterations,
+                                                "transfer_iterations", 1))
         self._check_charges(put)
         if not isinstance(self.disentangle, bool):
             raise ValueError(f"{option_label('disentangle')} must be True or False, found "

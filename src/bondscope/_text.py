@@ -157,6 +157,10 @@ def inspect_text(info):
              f"  sites         {info['sites']}",
              f"  local dims    {dim_text}",
              f"  dtype         {info['dtype']}"]
+    if info["kind"] == "unit-cell":
+        how = "--unit-cell asked" if info["unit_cell"] == "requested" else \
+            "detected: first left bond = last right bond != 1"
+        lines.append(f"  unit cell     {info['sites']} sites repeating ({how})")
     if "bond_dims" in info:
         bonds = info["bond_dims"]
         shown = " ".join(map(str, bonds)) if len(bonds) <= 24 else \
