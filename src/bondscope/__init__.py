@@ -36,6 +36,9 @@ bond_budget          -- smallest bond dimension per cut for an error target, and
 compare_profiles     -- per-cut differences, convergence and extrapolation over runs
 spectrum_diagnostics -- entanglement gap and degeneracy pattern per cut
 charge_equipartition -- sector entropies S(q) of a critical chain against equipartition
+mutual_information   -- one-site entropies, mutual-information matrix, decay, site ordering
+MutualInformation    -- the mutual-information document (site_entropies, suggested_order, ...)
+load_mutual          -- read a saved mutual-information document (.json)
 
 Errors
 ------
@@ -75,6 +78,9 @@ _LAZY = {
     "compare_profiles": "bondscope._analyses.comparison",
     "spectrum_diagnostics": "bondscope._analyses.diagnostics",
     "charge_equipartition": "bondscope._analyses.equipartition",
+    "mutual_information": "bondscope._analyses.mutual",
+    "MutualInformation": "bondscope._analyses.mutual",
+    "load_mutual": "bondscope._analyses.mutual",
 }
 
 __all__ = ["CheckpointError", "MemoryLimitError", "__version__", *_LAZY]

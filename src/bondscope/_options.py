@@ -21,7 +21,7 @@ LAYOUT = ("state", "tensors", "local_dim", "axes")
 # block-sparse checkpoints (bondscope._blocksparse)
 BLOCK_LAYOUT = ("blocks", "block_form", "charge_flow")
 MEASURES = ("renyi", "base", "spectrum", "bond_dim", "weight_tol", "route", "precision",
-            "charges", "modulus")
+            "charges", "modulus", "parity")
 # how a profile is computed, not what it holds (left out of a batch result's record)
 RESOURCES = ("scratch", "max_memory", "threads")
 ROUTES = ("auto", "gram", "svd")
@@ -67,6 +67,20 @@ def _spectrum(value):
     if value is True:
         return True
     return _integer(value, "spectrum", 1)
+
+
+def _parity(value):
+    if value is None:
+        return None
+    items = value.split(",") if isinstance(value, str) else list(value)
+    try:
+        bits = tuple(int(str(v).strip()) for v in items)
+    except ValueError:
+        bits = ()
+    if len(bits) < 2 or any(b not in (0, 1) for b in bits):
+        raise ValueError(f"{option_label('parity')} must list 0 or 1 for each local basis "
+                         f"state (at least two), e.g. 0,1 or 0,1,1,0; found {value!r}")
+    return bits
 
 
 @dataclasses.dataclass(frozen=True)
@@ -117,6 +131,10 @@ class ProfileOptions:
         Block-sparse form (found from the groups' members when omitted).
     charge_flow : {"rightward", "leftward"}
         Block conservation rule: q_right = q_left + q_phys, or q_left = q_right + q_phys.
+    parity : str or sequence of int, optional
+        Fermion parity (0 or 1) of each local basis state, e.g. ``"0,1,1,0"``:
+        the sites are fermionic modes in Jordan-Wigner order (used by
+        :func:`bondscope.mutual_information`).  Kept as a tuple of ints.
 
     Raises
     ------
@@ -153,6 +171,7 @@ class ProfileOptions:
     blocks: str = None
     block_form: str = None
     charge_flow: str = "rightward"
+    parity: tuple = None
 
     def __post_init__(self):
         from ._measure import renyi_orders
@@ -196,6 +215,7 @@ class ProfileOptions:
         if self.threads is not None:
             put("threads", _integer(self.threads, "threads", 1))
         self._check_charges(put)
+        put("parity", _parity(self.parity))
 
     def _check_charges(self, put):
         from ._blocksparse import FORMS
@@ -263,11 +283,14 @@ class ProfileOptions:
         """Every option as JSON-ready values."""
         out = dataclasses.asdict(self)
         out["renyi"] = list(self.renyi)
-        for name in ("local_dim", "axes", "modulus"):
+        for name in ("local_dim", "axes", "modulus", "parity"):
             if isinstance(out[name], tuple):
                 out[name] = list(out[name])
         return out
 
     def recorded(self):
         """The options that decide a profile's content (resources left out), as JSON values."""
-        return {k: v for k, v in self.to_dict().items() if k not in RESOURCES}
+        # parity only matters to mutual information; left out when unset so that batch
+        # records written before it existed still match
+        return {k: v for k, v in self.to_dict().items()
+                if k not in RESOURCES and not (k == "parity" and v is None)}
