@@ -27,6 +27,8 @@ spectrum_figure    -- entanglement spectrum levels -ln lambda^2 at every cut
 budget_figure      -- bond dimension needed per cut for target errors
 heatmap_figure     -- S(l, t) over a time series of checkpoints
 convergence_figure -- middle-cut entropy against discarded weight or 1/chi, extrapolated
+mutual_figure      -- mutual-information matrix, I(r) with its fit, one-site entropies
+ordering_figure    -- entanglement profile before and after the suggested site ordering
 write_report       -- one self-contained HTML page for a batch results directory
 
 Analyses
@@ -81,6 +83,8 @@ _LAZY = {
     "mutual_information": "bondscope._analyses.mutual",
     "MutualInformation": "bondscope._analyses.mutual",
     "load_mutual": "bondscope._analyses.mutual",
+    "mutual_figure": "bondscope._figures.mutual",
+    "ordering_figure": "bondscope._figures.ordering",
 }
 
 __all__ = ["CheckpointError", "MemoryLimitError", "__version__", *_LAZY]

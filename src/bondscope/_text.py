@@ -115,4 +115,9 @@ def inspect_text(info):
               f"  estimate      {format_bytes(est['memory_bytes'])} memory, "
               f"about {est['seconds']:.2g} s"
               + (f" (available memory {format_bytes(avail)})" if avail is not None else "")]
+    if "mutual_estimate" in info:
+        mut = info["mutual_estimate"]
+        lines.append(f"  mutual        {format_bytes(mut['memory_bytes'])} memory, about "
+                     f"{mut['seconds']:.2g} s for {mut['detail']['pairs']} pairs "
+                     "(bondscope mutual, without reordering)")
     return "\n".join(lines)

@@ -89,6 +89,18 @@ class MutualInformation(Result):
         """I(i, j) as an (N, N) array."""
         return np.asarray(self.mutual_information, dtype=float)
 
+    def save(self, path, *, protect=()):
+        """Write the document as JSON (whole or not at all); ValueError for another
+        suffix or a ``path`` that is one of ``protect`` (the inputs)."""
+        from .._files import atomic_write, refuse_overwrite
+
+        path = Path(path)
+        if path.suffix.lower() != ".json":
+            raise ValueError(f"{path}: a mutual-information document is saved as .json")
+        refuse_overwrite(path, protect, "an input")
+        text = self.to_json(indent=1) + "\n"
+        return atomic_write(path, lambda tmp: Path(tmp).write_text(text))
+
     @classmethod
     def from_dict(cls, doc, where="mutual information document"):
         """A result from its JSON document (checked for the contract fields)."""

@@ -111,8 +111,10 @@ def ordering_advice(mi, floors):
                                            "Laplacian eigenvalues)")
     elif current - proposed > slack:
         verdict, reason = "reorder", f"cost {current:.4g} -> {proposed:.4g}"
-    elif proposed - current > slack or order == list(range(n)):
-        verdict, reason = "keep", "the current order costs no more than the Fiedler order"
+    elif order == list(range(n)):
+        verdict, reason = "keep", "the Fiedler order is the current order"
+    elif proposed - current > slack:
+        verdict, reason = "keep", "the Fiedler order costs more than the current one"
     else:
         verdict, reason = "inconclusive", (f"costs {current:.4g} and {proposed:.4g} differ by "
                                            f"less than their error bound {slack:.2g}")

@@ -57,7 +57,8 @@ def add_arguments(p):
         g.add_argument(*flags, dest=dest, **kw)
     g.add_argument("--no-fit", action="store_true",
                    help="entropy: curves only, no central-charge fit or residual panel")
-    add_flags(p, *FIT_FLAGS, *LAYOUT_FLAGS, "renyi", "base", "charges", "modulus", "quiet")
+    add_flags(p, *FIT_FLAGS, *LAYOUT_FLAGS, "renyi", "base", "charges", "modulus", "parity",
+              "quiet")
 
 
 def fit_choice(args):
