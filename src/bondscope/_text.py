@@ -115,6 +115,10 @@ def inspect_text(info):
               f"  estimate      {format_bytes(est['memory_bytes'])} memory, "
               f"about {est['seconds']:.2g} s"
               + (f" (available memory {format_bytes(avail)})" if avail is not None else "")]
+    buffer = est.get("detail", {}).get("read_buffer_bytes")
+    if buffer:
+        lines.append(f"  of which      {format_bytes(buffer)} per read for HDF5 chunks "
+                     "decompressed whole")
     if "mutual_estimate" in info:
         mut = info["mutual_estimate"]
         lines.append(f"  mutual        {format_bytes(mut['memory_bytes'])} memory, about "
