@@ -13,13 +13,13 @@ from itertools import product
 import h5py
 import numpy as np
 import pytest
+from builders import contract, random_chain, scramble_gauge, write_chain
 
 import bondscope
 from bondscope import CheckpointError, MemoryLimitError
 from bondscope._kernels.environments import chain_densities
 from bondscope._kernels.partialtrace import state_densities
 from bondscope._source import chain_from_arrays
-from builders import contract, random_chain, scramble_gauge, write_chain
 
 EPS = np.finfo(np.float64).eps
 LN2 = np.log(2.0)
@@ -267,3 +267,15 @@ def test_inspect_knows_the_cost(tmp_path):
     b = bondscope.inspect(large)["mutual_estimate"]
     assert a["detail"]["pairs"] == 15 and b["detail"]["pairs"] == 66
     assert b["flops"] > 4 * a["flops"]          # O(N^2) pairs
+
+
+@pytest.mark.slow
+def test_dask_scheduler_gives_the_in_process_result(tmp_path):
+    distributed = pytest.importorskip("distributed")
+    rng = np.random.default_rng(5)
+    path = _checkpoint(tmp_path, random_chain(rng, [2] * 6, [2, 4, 4, 4, 2]))
+    one = bondscope.mutual_information(path, reorder=False)
+    with distributed.Client(processes=False, n_workers=1, threads_per_worker=1,
+                            dashboard_address=None) as client:
+        other = bondscope.mutual_information(path, reorder=False, scheduler=client)
+    assert np.abs(one.matrix - other.matrix).max() < 1e-13

@@ -14,8 +14,16 @@ J. Phys. A 36, L205 (2003)).
 
 import numpy as np
 
-__all__ = ["orbitals", "slater_mps", "slater_vector", "vector_mps", "block_entropy",
-           "peschel_mutual", "merge_pairs", "interleaved"]
+__all__ = [
+    "block_entropy",
+    "interleaved",
+    "merge_pairs",
+    "orbitals",
+    "peschel_mutual",
+    "slater_mps",
+    "slater_vector",
+    "vector_mps",
+]
 
 _Z = np.diag([1.0, -1.0])
 _UP = np.array([[0.0, 0.0], [1.0, 0.0]])       # |1><0|

@@ -47,7 +47,7 @@ def ordering_figure(sources, *, swap_bond_dim=None, title=None, options=None, **
         size = marker_size(len(cuts))
         for k, (key, label) in enumerate((("before", "current order"),
                                           ("after", "suggested order"))):
-            look = dict(color=COLOURS[k], marker=MARKERS[k], markersize=size)
+            look = {"color": COLOURS[k], "marker": MARKERS[k], "markersize": size}
             ax_s.plot(cuts, r[key]["entropies"], label=label, **look)
             ax_b.step(cuts, r[key]["budget"], where="mid", color=COLOURS[k], label=label)
         ax_s.set_ylabel(f"S(l) [{unit}]")
@@ -56,7 +56,10 @@ def ordering_figure(sources, *, swap_bond_dim=None, title=None, options=None, **
             note += (f", chi <= {r['swap_bond_dim']}, infidelity <= "
                      f"{r['infidelity_bound']:.1e}")
         ax_s.legend(title=note, fontsize=8, title_fontsize=7.5)
+        from matplotlib.ticker import ScalarFormatter
+
         ax_b.set_yscale("log", base=2)
+        ax_b.yaxis.set_major_formatter(ScalarFormatter())
         ax_b.set_ylabel(f"chi for weight {r['after']['budget_target']:g}")
         cut_label(ax_b)
         text = (f"Profile before and after reordering, cost "
