@@ -198,9 +198,10 @@ def _pairs_from(i, a, left, src, shelf, signs, parity, out):
         if j < n - 1:
             flat = b.reshape(chi_l * b.shape[1], b.shape[2])
             zf = z.reshape(m, chi_l * b.shape[1], b.shape[2])
-            x = np.matmul(flat.T, zf)
-            if odd.any():
-                x[odd] = np.matmul(_signed(b, signs[j]).reshape(flat.shape).T, zf[odd])
+            signed = _signed(b, signs[j]).reshape(flat.shape).T if odd.any() else None
+            # one BLAS product per block (a stacked matmul with a transposed factor
+            # would not reach the BLAS)
+            x = np.stack([(signed if flip else flat.T) @ zf[k] for k, flip in enumerate(odd)])
             x /= float(np.linalg.norm(x)) or 1.0
         yield
     out.errors.update(factors)
