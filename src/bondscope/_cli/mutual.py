@@ -45,12 +45,9 @@ def run(args):
             args.file, profile_options(args), select=args.select, reorder=args.reorder,
             swap_bond_dim=args.swap_bond_dim, budget_target=args.budget_target,
             workers=args.workers, scheduler=args.scheduler, progress=not args.quiet)
-    if args.output:
-        result.save(args.output, protect=[args.file])
-    if args.json:
-        sys.stdout.write(result.to_json(indent=1) + "\n")
-    else:
-        print(mutual_text(result))
-        if args.output:
-            print(f"mutual information written to {args.output}")
+    saved = result.save(args.output, protect=[args.file]) if args.output else None
+    text = result.to_json(indent=1) if args.json else mutual_text(result)
+    if saved and not args.json:
+        text += f"\nmutual information written to {args.output}"
+    sys.stdout.write(text + "\n")
     return 0

@@ -24,6 +24,7 @@ def ordering_figure(sources, *, swap_bond_dim=None, title=None, options=None, **
     swap_bond_dim : int, optional
         Bond cap of the swap gates that reorder an MPS (default its largest bond).
     title : str, optional
+        Figure title (default: the ordering costs; "" for none).
     %(profiling)s
 
     %(figure_returns)s

@@ -4,11 +4,10 @@ Kernels here trust their inputs: sources and parities are validated at the bound
 """
 
 import math
-import os
-import shutil
-import tempfile
 
 import numpy as np
+
+from .store import BondStore
 
 __all__ = [
     "SHELF_BYTES",
@@ -24,43 +23,18 @@ __all__ = [
 SHELF_BYTES = 64 * 2**20
 
 
-class EnvironmentShelf:
-    """Arrays kept by index and read many times: in memory up to a budget, then as .npy
-    files in a scratch directory read back memory-mapped."""
+class EnvironmentShelf(BondStore):
+    """A :class:`~bondscope._kernels.store.BondStore` whose arrays are read many times:
+    ``get`` leaves them in place (spilled ones are read back memory-mapped)."""
 
     def __init__(self, scratch=None, budget=SHELF_BYTES):
-        self._held, self._files, self._used = {}, {}, 0
-        self._budget, self._scratch, self._dir = budget, scratch, None
-
-    def put(self, key, array):
-        if self._used + array.nbytes <= self._budget:
-            self._held[key] = array
-            self._used += array.nbytes
-            return
-        if self._dir is None:
-            if self._scratch is not None:
-                os.makedirs(self._scratch, exist_ok=True)
-            self._dir = tempfile.mkdtemp(prefix="bondscope-env-", dir=self._scratch)
-        path = os.path.join(self._dir, f"{key}.npy")
-        np.save(path, array)
-        self._files[key] = path
+        super().__init__(scratch, budget)
 
     def get(self, key):
-        if key in self._held:
-            return self._held[key]
-        return np.load(self._files[key], mmap_mode="r")
-
-    def close(self):
-        self._held.clear()
-        if self._dir is not None:
-            shutil.rmtree(self._dir, ignore_errors=True)
-            self._dir = None
-
-    def __enter__(self):
-        return self
-
-    def __exit__(self, *exc):
-        self.close()
+        with self._lock:
+            if key in self._mem:
+                return self._mem[key]
+            return np.load(self._disk[key], mmap_mode="r")
 
 
 class SiteDensities:
@@ -146,7 +120,7 @@ def _right_blocks(src, shelf, signs):
         a = src.tensor(j)
         bra = a.conj().reshape(a.shape[0], -1).T
         g = (a.reshape(-1, a.shape[2]) @ env).reshape(a.shape)
-        shelf.put(j, g)
+        shelf.put(f"G{j}", g)
         env = g.reshape(a.shape[0], -1) @ bra
         if penv is not None:
             gp = (a.reshape(-1, a.shape[2]) @ penv).reshape(a.shape)
@@ -183,7 +157,7 @@ def _pairs_from(i, a, left, src, shelf, signs, parity, out):
     d = a.shape[1]
     pairs, odd = components(d, parity)
     w = (left @ a.conj().reshape(a.shape[0], -1)).reshape(a.shape)
-    rho = np.einsum("asc,atc->st", np.asarray(shelf.get(i)), w)
+    rho = np.einsum("asc,atc->st", np.asarray(shelf.get(f"G{i}")), w)
     out.one[i] = rho / np.trace(rho).real
     factors = {i: eps * 4 * (a.shape[0] * d + a.shape[2])}
     # X_{s s'}[b, b'] = sum A[a, s, b] L[a, a'] conj(A[a', s', b'])
@@ -193,7 +167,7 @@ def _pairs_from(i, a, left, src, shelf, signs, parity, out):
         m, chi_l = x.shape[0], x.shape[1]
         z = (x.reshape(m * chi_l, chi_l) @ b.conj().reshape(chi_l, -1)).reshape(
             m, chi_l, b.shape[1], b.shape[2])
-        out.two[i, j] = assemble(_close(z, np.asarray(shelf.get(j))), pairs, d, b.shape[1])
+        out.two[i, j] = assemble(_close(z, np.asarray(shelf.get(f"G{j}"))), pairs, d, b.shape[1])
         factors[i, j] = eps * 4 * (j - i + 2) * (chi_l * b.shape[1] + b.shape[2])
         if j < n - 1:
             flat = b.reshape(chi_l * b.shape[1], b.shape[2])

@@ -26,14 +26,15 @@ def state_densities(psi, dims, parity=None, tick=None):
         Amplitudes, site 1 the slowest index (normalised here).
     dims : list of int
     parity : sequence of int, optional
-        Fermion parity of each local basis state; the blocks of rho_ij whose
-        operator on site i is odd then carry the string prod_{i<k<j} (-1)^{p_k}.
+        0/1 per local basis state: with it, rho_ij's blocks that are odd on
+        site i carry the string prod_{i<k<j} (-1)^{p_k}.
     tick : callable, optional
-        Called once per pair.
+        Called after each pair.
 
     Returns
     -------
     SiteDensities
+        Matrices, keyed by site (from 0) and by pair.
 
     Notes
     -----
