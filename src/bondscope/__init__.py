@@ -30,6 +30,8 @@ heatmap_figure     -- S(l, t) over a time series of checkpoints
 convergence_figure -- middle-cut entropy against discarded weight or 1/chi, extrapolated
 mixed_figure       -- mixed states: physical S_2 and I_2 beside the stored form's cut entropy
 cellscaling_figure -- unit cells: entropy against ln xi with the central-charge fit
+mutual_figure      -- mutual-information matrix, I(r) with its fit, one-site entropies
+ordering_figure    -- entanglement profile before and after the suggested site ordering
 write_report       -- one self-contained HTML page for a batch results directory
 
 Analyses
@@ -40,6 +42,9 @@ compare_profiles     -- per-cut differences, convergence and extrapolation over 
 spectrum_diagnostics -- entanglement gap and degeneracy pattern per cut
 charge_equipartition -- sector entropies S(q) of a critical chain against equipartition
 fit_cell_scaling     -- unit cells at growing bond dimension: central charge and kappa
+mutual_information   -- one-site entropies, mutual-information matrix, decay, site ordering
+MutualInformation    -- the mutual-information document (site_entropies, suggested_order, ...)
+load_mutual          -- read a saved mutual-information document (.json)
 
 Errors
 ------
@@ -85,6 +90,11 @@ _LAZY = {
     "charge_equipartition": "bondscope._analyses.equipartition",
     "fit_cell_scaling": "bondscope._analyses.cellscaling",
     "cellscaling_figure": "bondscope._figures.cellscaling",
+    "mutual_information": "bondscope._analyses.mutual",
+    "MutualInformation": "bondscope._analyses.mutual",
+    "load_mutual": "bondscope._analyses.mutual",
+    "mutual_figure": "bondscope._figures.mutual",
+    "ordering_figure": "bondscope._figures.ordering",
 }
 
 __all__ = ["CheckpointError", "ConvergenceError", "MemoryLimitError", "__version__", *_LAZY]

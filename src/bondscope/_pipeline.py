@@ -338,8 +338,9 @@ def inspect(source, options=None, **kwargs):
     dict
         ``kind``, ``source``, ``sites``, ``local_dims``, ``bond_dims`` (MPS),
         ``max_bond_dim``, ``dtype``, ``data_bytes``, ``file_bytes``, ``route``
-        (state vectors), ``estimate`` (memory_bytes, flops, seconds) and
-        ``available_memory``.
+        (state vectors), ``estimate`` (memory_bytes, flops, seconds),
+        ``mutual_estimate`` (the same for :func:`bondscope.mutual_information`
+        without reordering; dense sources) and ``available_memory``.
 
     Raises
     ------
@@ -367,5 +368,9 @@ def inspect(source, options=None, **kwargs):
             info["route"] = route
         info["estimate"] = estimate(src, route, opts.truncating, opts.charges is not None,
                                     opts.disentangle).to_dict()
+        if not hasattr(src, "blocks") and src.kind in ("mps", "state-vector"):
+            from ._kernels.pairtasks import pair_estimate
+
+            info["mutual_estimate"] = pair_estimate(src).to_dict()
         info["available_memory"] = available_memory()
     return info

@@ -181,4 +181,9 @@ def inspect_text(info):
     if buffer:
         lines.append(f"  of which      {format_bytes(buffer)} per read for HDF5 chunks "
                      "decompressed whole")
+    if "mutual_estimate" in info:
+        mut = info["mutual_estimate"]
+        lines.append(f"  mutual        {format_bytes(mut['memory_bytes'])} memory, about "
+                     f"{mut['seconds']:.2g} s for {mut['detail']['pairs']} pairs "
+                     "(bondscope mutual, without reordering)")
     return "\n".join(lines)

@@ -98,6 +98,10 @@ FLAGS = {
     "modulus": ("measures", ("--modulus",), dict(
         metavar="M", help="one per quantity: M >= 2 for a Z_M charge (parity: 2), 0 for an "
                           "integer charge")),
+    # fermionic modes (mutual information)
+    "parity": ("measures", ("--parity",), dict(
+        metavar="P", help="fermion parity 0/1 of each local basis state, e.g. 0,1 or 0,1,1,0: "
+                          "sites are fermionic modes in Jordan-Wigner order (docs/mutual.md)")),
     # measures
     "renyi": ("measures", ("--renyi",), dict(metavar="ALPHAS", type=_words, default=[],
                                              help="Renyi orders, e.g. 0.5,2,inf")),
