@@ -509,3 +509,24 @@ def test_report_and_shards_verified(hostile_batch, tmp_path, capsys):
     assert main(["report", str(summary.out), "-o", str(target)]) == 2  # never over an input
     assert "refusing to write over" in capsys.readouterr().err
     assert target.read_bytes() == before
+
+
+@pytest.mark.slow
+def test_unstoppable_checkpoint_is_killed(tmp_path, monkeypatch):
+    # workers that never see their alarm (SIGALRM blocked at start-up, as when a read is
+    # stuck in uninterruptible code): the pool kills them after the hard limit
+    site = tmp_path / "site"
+    site.mkdir()
+    (site / "sitecustomize.py").write_text(
+        "import signal\nsignal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGALRM})\n")
+    monkeypatch.setenv("PYTHONPATH", os.pathsep.join(filter(None, [
+        str(site), os.environ.get("PYTHONPATH")])))
+    for name in ("a.h5", "b.h5"):
+        checkpoint(tmp_path / name)
+    os.mkfifo(tmp_path / "stuck.h5")
+    summary = run_batch([tmp_path / n for n in ("a.h5", "stuck.h5", "b.h5")],
+                        tmp_path / "out", workers=2, threads=1, time_limit=1.0)
+    status = {Path(r["source"]).name: r["status"] for r in summary.rows}
+    assert status == {"a.h5": "done", "stuck.h5": "failed", "b.h5": "done"}
+    failed = next(r for r in summary.rows if r["status"] == "failed")
+    assert failed["error"].startswith("TimeLimit: ")
