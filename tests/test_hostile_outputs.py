@@ -361,12 +361,29 @@ def test_time_limit_values(tmp_path, limit, error):
         run_batch(tmp_path / "a.h5", tmp_path / "out", time_limit=5, scheduler="tcp://x:1")
 
 
-def test_stuck_checkpoint_is_a_failed_row(tmp_path):
-    checkpoint(tmp_path / "good.h5")
-    fifo = tmp_path / "stuck.h5"
-    os.mkfifo(fifo)  # opening it blocks until a writer comes: forever
-    summary = run_batch([tmp_path / "good.h5", fifo], tmp_path / "out", workers=1, threads=1,
-                        time_limit=1.0)
+def hung_reads(tmp_path, monkeypatch, block_alarm=False):
+    """Worker processes whose reads of files named stuck*.h5 never return (a hung network
+    file system), from a sitecustomize module they import at start-up; with
+    ``block_alarm`` they never see their alarm either (uninterruptible code)."""
+    site = tmp_path / "site"
+    site.mkdir()
+    code = ["import builtins, os, signal, time", "_open = builtins.open",
+            "def _hung(file, *args, **kwargs):",
+            "    if os.path.basename(str(file)).startswith('stuck'):",
+            "        time.sleep(3600)",
+            "    return _open(file, *args, **kwargs)",
+            "builtins.open = _hung"]
+    if block_alarm:
+        code.append("signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGALRM})")
+    (site / "sitecustomize.py").write_text("\n".join(code) + "\n")
+    monkeypatch.setenv("PYTHONPATH", os.pathsep.join(filter(None, [
+        str(site), os.environ.get("PYTHONPATH")])))
+
+
+def test_stuck_checkpoint_is_a_failed_row(tmp_path, monkeypatch):
+    hung_reads(tmp_path, monkeypatch)
+    good, stuck = checkpoint(tmp_path / "good.h5"), checkpoint(tmp_path / "stuck.h5")
+    summary = run_batch([good, stuck], tmp_path / "out", workers=1, threads=1, time_limit=1.0)
     status = {Path(r["source"]).name: (r["status"], r["error"]) for r in summary.rows}
     assert status["good.h5"] == ("done", None)
     assert status["stuck.h5"][0] == "failed"
@@ -513,19 +530,11 @@ def test_report_and_shards_verified(hostile_batch, tmp_path, capsys):
 
 @pytest.mark.slow
 def test_unstoppable_checkpoint_is_killed(tmp_path, monkeypatch):
-    # workers that never see their alarm (SIGALRM blocked at start-up, as when a read is
-    # stuck in uninterruptible code): the pool kills them after the hard limit
-    site = tmp_path / "site"
-    site.mkdir()
-    (site / "sitecustomize.py").write_text(
-        "import signal\nsignal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGALRM})\n")
-    monkeypatch.setenv("PYTHONPATH", os.pathsep.join(filter(None, [
-        str(site), os.environ.get("PYTHONPATH")])))
-    for name in ("a.h5", "b.h5"):
-        checkpoint(tmp_path / name)
-    os.mkfifo(tmp_path / "stuck.h5")
-    summary = run_batch([tmp_path / n for n in ("a.h5", "stuck.h5", "b.h5")],
-                        tmp_path / "out", workers=2, threads=1, time_limit=1.0)
+    # the pool kills workers that do not stop at their alarm, after the hard limit; the
+    # checkpoints of the other workers killed with them are given out again
+    hung_reads(tmp_path, monkeypatch, block_alarm=True)
+    paths = [checkpoint(tmp_path / n) for n in ("a.h5", "stuck.h5", "b.h5")]
+    summary = run_batch(paths, tmp_path / "out", workers=2, threads=1, time_limit=1.0)
     status = {Path(r["source"]).name: r["status"] for r in summary.rows}
     assert status == {"a.h5": "done", "stuck.h5": "failed", "b.h5": "done"}
     failed = next(r for r in summary.rows if r["status"] == "failed")
