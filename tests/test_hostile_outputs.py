@@ -173,7 +173,7 @@ def test_saved_profile_defects(tmp_path, capsys, writer, name, edit, status, wor
     (["ck.h5"], 0, "max S ="),  # a checkpoint is profiled
     (["saved.json"], 0, "max S ="),  # a saved profile is shown again, not "not an HDF5 file"
     (["saved.h5"], 0, "max S ="),  # also an .h5 results file
-    (["scan"], 2, "is a directory; to profile the checkpoints in it use `bondscope batch"),
+    (["scan"], 3, "is a directory; to profile the checkpoints in it use `bondscope batch"),
     (["ck.h5", "scan/b.h5"], 2, "profile takes one checkpoint, found 2"),  # several files
 ])
 def test_profile_inputs(tmp_path, capsys, monkeypatch, given, status, words):

@@ -329,8 +329,9 @@ def open_source(path, *, state=None, tensors=None, local_dim=None, axes=None,
         refuse_missing_sources(f, path)
         src = _pick(f, Path(path), state, tensors, local_dim, axes, complex_parts, precision)
     except (OSError, RuntimeError, KeyError) as exc:      # h5py's errors for a changing file
+        error = unreadable_structure(f, exc)  # names the file: before it is closed
         f.close()
-        raise unreadable_structure(f, exc) from None
+        raise error from None
     except BaseException:
         f.close()
         raise
