@@ -470,6 +470,19 @@ def test_run_attribute_names(tmp_path, options, found):
     assert {k: got[k] for k in found} == found and set(found) <= set(got)
 
 
+@pytest.mark.parametrize("rename, meta", [
+    (None, {"time": 0.5}),  # default names: no max_discarded_weight attribute
+    ({"max_discarded_weight": "trunc_err", "time": "t"},
+     {"time": 2.5, "max_discarded_weight": 1e-9}),  # the batch's names reach the comparison
+    ({"time": "label"}, {}),  # a text time is left out
+])
+def test_series_comparison_reads_the_batch_names(tmp_path, rename, meta):
+    from bondscope._batch.summaries import _run_meta
+
+    path = checkpoint(tmp_path / "ck.h5", time=0.5, t=2.5, trunc_err=1e-9, label="x")
+    assert _run_meta(path, rename) == meta
+
+
 @pytest.mark.parametrize("kwargs, error", [
     ({"bond_dim_attr": 16}, TypeError),  # a number is not an attribute name
     ({"bond_dim_atr": "chi"}, TypeError),  # misspelt: unknown option
