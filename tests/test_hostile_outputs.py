@@ -232,6 +232,27 @@ def test_virtual_dataset_sources(tmp_path, capsys, change, words):
     assert str(source) in one_line_error(capsys)
 
 
+@pytest.mark.parametrize("missing", [False, True])
+def test_block_sparse_checkpoint_with_a_virtual_dataset(tmp_path, missing):
+    import blockdata
+
+    from bondscope._blocksparse import open_blocks
+
+    path = blockdata.example_files(tmp_path)["blocks"]
+    layout = h5py.VirtualLayout(shape=(4,), dtype="f8")
+    layout[:] = h5py.VirtualSource("notes.h5", "x", shape=(4,))
+    with h5py.File(path, "a") as f:
+        f.create_virtual_dataset("notes", layout, fillvalue=0.0)
+    if not missing:
+        with h5py.File(tmp_path / "notes.h5", "w") as f:
+            f["x"] = np.zeros(4)
+        with open_blocks(path, charges="0,1") as src:
+            assert src.sites == 8  # the block-sparse chain itself is read as ever
+        return
+    with pytest.raises(CheckpointError, match="virtual dataset /notes: source file"):
+        open_blocks(path, charges="0,1")
+
+
 @pytest.mark.parametrize("link, edit, same", [
     ("vds", None, True),  # nothing changed: the result is still valid
     ("vds", "rewrite-source", False),  # the VDS source changed: redo (was skipped before)
