@@ -250,7 +250,7 @@ def case_profile_saved(d, tree):
 def case_profile_dir(d, tree):
     (d / "scan").mkdir()
     chain(d / "scan" / "a.h5")
-    return clean_error(run(tree, "profile", "scan", cwd=d), 3, ["bondscope batch"])
+    return clean_error(run(tree, "profile", "scan", cwd=d), 2, ["bondscope batch"])
 
 
 def case_profile_many(d, tree):

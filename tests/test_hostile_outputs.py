@@ -173,7 +173,7 @@ def test_saved_profile_defects(tmp_path, capsys, writer, name, edit, status, wor
     (["ck.h5"], 0, "max S ="),  # a checkpoint is profiled
     (["saved.json"], 0, "max S ="),  # a saved profile is shown again, not "not an HDF5 file"
     (["saved.h5"], 0, "max S ="),  # also an .h5 results file
-    (["scan"], 3, "is a directory; to profile the checkpoints in it use `bondscope batch"),
+    (["scan"], 2, "is a directory; to profile the checkpoints in it use `bondscope batch"),
     (["ck.h5", "scan/b.h5"], 2, "profile takes one checkpoint, found 2"),  # several files
 ])
 def test_profile_inputs(tmp_path, capsys, monkeypatch, given, status, words):
@@ -382,6 +382,43 @@ def test_time_limit_values(tmp_path, limit, error):
         run_batch(tmp_path / "a.h5", tmp_path / "out", time_limit=5, scheduler="tcp://x:1")
 
 
+_STALL_HOOK = """
+import os
+if os.environ.get("BONDSCOPE_TEST_STALLED"):
+    import time
+    from pathlib import Path
+    from bondscope._batch import worker
+
+    _original = worker.profile_one
+
+    def profile_one(task):
+        if Path(task["path"]).name == os.environ["BONDSCOPE_TEST_STALLED"]:
+            time.sleep(3600)
+        return _original(task)
+
+    worker.profile_one = profile_one
+"""
+
+
+def test_stuck_checkpoint_is_a_failed_row(tmp_path, monkeypatch):
+    # a worker that never returns (a hung read): injected through sitecustomize, since
+    # the loader refuses the FIFOs that would otherwise hang
+    hooks = tmp_path / "hooks"
+    hooks.mkdir()
+    (hooks / "sitecustomize.py").write_text(_STALL_HOOK)
+    paths = [str(hooks), os.environ.get("PYTHONPATH", "")]
+    monkeypatch.setenv("PYTHONPATH", os.pathsep.join(p for p in paths if p))
+    monkeypatch.setenv("BONDSCOPE_TEST_STALLED", "stuck.h5")
+    checkpoint(tmp_path / "good.h5")
+    checkpoint(tmp_path / "stuck.h5")
+    summary = run_batch([tmp_path / "good.h5", tmp_path / "stuck.h5"], tmp_path / "out",
+                        workers=1, threads=1, time_limit=1.0)
+    status = {Path(r["source"]).name: (r["status"], r["error"]) for r in summary.rows}
+    assert status["good.h5"] == ("done", None)
+    assert status["stuck.h5"][0] == "failed"
+    assert status["stuck.h5"][1].startswith("TimeLimit: still running after the time limit")
+
+
 def hung_reads(tmp_path, monkeypatch, block_alarm=False):
     """Worker processes whose reads of files named stuck*.h5 never return (a hung network
     file system), from a sitecustomize module they import at start-up; with
@@ -401,7 +438,8 @@ def hung_reads(tmp_path, monkeypatch, block_alarm=False):
         str(site), os.environ.get("PYTHONPATH")])))
 
 
-def test_stuck_checkpoint_is_a_failed_row(tmp_path, monkeypatch):
+def test_stuck_read_is_stopped_by_its_worker(tmp_path, monkeypatch):
+    # a read that never returns, inside the profiling: the worker's own alarm stops it
     hung_reads(tmp_path, monkeypatch)
     good, stuck = checkpoint(tmp_path / "good.h5"), checkpoint(tmp_path / "stuck.h5")
     summary = run_batch([good, stuck], tmp_path / "out", workers=1, threads=1, time_limit=1.0)

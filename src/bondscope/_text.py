@@ -5,6 +5,7 @@ import re
 import unicodedata
 
 from ._estimate import format_bytes
+from ._exponent import norm_text
 
 __all__ = ["profile_table", "inspect_text", "entropy_unit", "natural_key", "visible"]
 
@@ -61,7 +62,8 @@ def profile_table(profile):
     dim_text = str(dims[0]) if dims and len(set(dims)) == 1 else ",".join(map(str, dims))
     lines = [visible(profile.source),
              f"  {profile.kind}, {profile.sites} sites, local dims {dim_text}, "
-             f"{profile.get('dtype', '?')}, norm {profile.norm:.12g}, "
+             f"{profile.get('dtype', '?')}, "
+             f"norm {norm_text(profile.norm, profile.get('norm_exponent', 0))}, "
              f"route {profile.get('route', '?')}, entropies in {entropy_unit(profile.log_base)}"]
     orders = profile.renyi_orders
     trunc = profile.truncation

@@ -50,13 +50,11 @@ def run(args):
 
 
 def _one_checkpoint(files, visible):
-    from .._errors import CheckpointError
-
     if len(files) > 1:
         raise UsageError(f"profile takes one checkpoint, found {len(files)}; for several use "
                          f"`bondscope batch {' '.join(visible(f) for f in files[:3])}"
                          f"{' ...' if len(files) > 3 else ''} --out RESULTS`")
     if os.path.isdir(files[0]):
-        raise CheckpointError(f"{visible(files[0])}: is a directory; to profile the checkpoints in "
+        raise UsageError(f"{visible(files[0])}: is a directory; to profile the checkpoints in "
                          f"it use `bondscope batch {visible(files[0])} --out RESULTS`")
     return files[0]
