@@ -211,9 +211,9 @@ def _abscissa(against, positions, sites, boundary):
         return positions
     if against == "fraction":
         return positions / sites
-    from .._analyses.scaling import _chord
+    from .._analyses.models import chord
 
-    return np.log(_chord(positions, sites, boundary))
+    return np.log(chord(positions, sites, boundary))
 
 
 def _draw_fit(ax, res, fit, prof, x, s, base, look):
