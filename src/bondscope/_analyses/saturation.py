@@ -9,6 +9,8 @@ __all__ = ["finite_chi", "entropy_bias", "TAIL_FACTOR"]
 # the weight a capped cut drops, as a multiple of its smallest kept lambda^2 (our choice:
 # at least twice the true tail on truncated XX spectra, L = 100, chi = 4..64)
 TAIL_FACTOR = 20.0
+# a dropped weight this large leaves the entropy unbounded by the estimate
+SEVERE = 0.5
 
 
 def entropy_bias(w):
@@ -72,7 +74,7 @@ def finite_chi(prof, positions):
     """
     chi, bond_source = _run_bond(prof)
     out = {"bond_dimension": chi, "bond_source": bond_source, "capped": [], "bias": [],
-           "weight_source": None}
+           "severe": [], "weight_source": None}
     if chi is None:
         return out
     by_pos = {c["position"]: c for c in prof.cuts}
@@ -93,5 +95,7 @@ def finite_chi(prof, positions):
             w, source = None, None
         out["capped"].append(int(p))
         out["bias"].append(None if w is None else entropy_bias(w))
+        if w is not None and w >= SEVERE:
+            out["severe"].append(int(p))
         out["weight_source"] = out["weight_source"] or source
     return out

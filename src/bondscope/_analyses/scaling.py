@@ -365,12 +365,14 @@ def fit_scaling(source, *, boundary=None, window=None, corrections=None, parity_
         if sat_unknown:
             flags.append(f"{where}; their truncation bias is unknown without spectra or a "
                          "discarded weight (profile with --spectrum)")
-        elif sat_part > SATURATED_C and law == "logarithmic":
-            law, reason = "inconclusive", (f"saturated: {where} move c by {sat_part:.2g}; "
-                                           "use a larger bond dimension or a window of "
-                                           "uncapped cuts")
+        elif (sat_part > SATURATED_C or sat["severe"]) and law in ("logarithmic",
+                                                                   "inconclusive"):
+            moved = (f"move c by {sat_part:.2g}" if not sat["severe"] else
+                     f"drop up to half their weight at {len(sat['severe'])} cuts")
+            law, reason = "inconclusive", (f"saturated: {where} {moved}; use a larger bond "
+                                           "dimension or a window of uncapped cuts")
             flags.append(reason)
-        elif sat_part > SATURATED_C:
+        elif sat_part > SATURATED_C or sat["severe"]:
             flags.append(f"{where}: a {law} law, or a critical profile saturated by the bond "
                          "dimension; a run at larger bond dimension tells")
     if spectrum_report:

@@ -11,11 +11,15 @@ __all__ = ["decide_law", "AREA_C", "PAGE_FRACTION", "TIE", "RESOLVED"]
 # c below half the smallest unitary central charge (1/2, Friedan, Qiu, Shenker, PRL 52,
 # 1575 (1984)) means the entropy has stopped growing with the block: area law
 AREA_C = 0.25
+# an area verdict must rule out this central charge, the smallest of a unitary critical chain
+SMALLEST_C = 0.5
 # a volume-law middle cut holds at least this fraction of the Page value (our choice)
 PAGE_FRACTION = 0.5
 # models within this AICc of the best are tied (Burnham & Anderson (2002), Sec. 2.6:
 # a difference below 2 is substantial support for both)
 TIE = 2.0
+# residual degrees of freedom a law comparison needs beyond the parameters (our choice)
+MIN_DOF = 3
 # c must exceed this many of its errors for a logarithmic verdict (our choice, 2 sigma)
 RESOLVED = 2.0
 
@@ -24,9 +28,8 @@ def _page_ratio(l, S, sites, local_dims):
     from .scaling import page_entropy
 
     mid = int(np.argmin(np.abs(l - sites / 2.0)))
-    if local_dims is None:
-        return mid, None, None
-    logs = np.log(np.asarray(local_dims, dtype=float))
+    # unknown dimensions: 2, the smallest, whose Page value bounds every other's from below
+    logs = np.log(np.asarray(local_dims if local_dims is not None else [2] * sites, dtype=float))
     page = page_entropy(logs[:l[mid]].sum(), logs[l[mid]:].sum())
     return mid, page, (float(S[mid] / page) if page > 0 else None)
 
@@ -39,8 +42,10 @@ def decide_law(l, S, sites, boundary, corrections, form, exponent, c, c_err, loc
     distance to the nearer end).  The lowest AICc wins unless another law is
     within ``TIE``; a logarithmic winner with c + 2 err below ``AREA_C`` is
     read as area; a logarithmic verdict needs c resolved (c > RESOLVED err)
-    and c > 0; a volume verdict needs the middle cut at ``PAGE_FRACTION`` of
-    the Page value when the local dimensions are known.
+    and c > 0; an area verdict needs c + 2 err below ``SMALLEST_C``; a volume
+    verdict needs a rising slope and the middle cut at ``PAGE_FRACTION`` of
+    the Page value (local dimensions 2 when unknown, the smallest possible,
+    so the ratio is then an upper bound).
 
     Returns
     -------
@@ -65,11 +70,13 @@ def decide_law(l, S, sites, boundary, corrections, form, exponent, c, c_err, loc
     flags = []
     if c + 2.0 * c_err < 0:
         flags.append(f"unphysical central charge {c:.3g} +- {c_err:.2g} (negative)")
-    if any(math.isinf(v) for v in scores.values()):
-        need = max(f.k for f in fits.values()) + 3
+    # three residual degrees of freedom beyond the largest model and its variance
+    need = max(f.k for f in fits.values()) + MIN_DOF + 1
+    if len(l) < need or any(math.isinf(v) for v in scores.values()):
         return ("inconclusive", f"too few cuts to compare the laws ({len(l)} in the window, "
                 f"{need} needed)", evidence, flags)
-    small = c + 2.0 * c_err < AREA_C
+    small = c + 2.0 * c_err < AREA_C and c - 2.0 * c_err > -AREA_C
+    bounded = c + 2.0 * c_err < SMALLEST_C
 
     def law_of(lead):
         if lead == "logarithmic" and small:
@@ -87,6 +94,9 @@ def decide_law(l, S, sites, boundary, corrections, form, exponent, c, c_err, loc
     if rivals:
         return ("inconclusive", f"{law} and {', '.join(sorted(rivals))} tied (AICc within "
                 f"{TIE:g})", evidence, flags)
+    if law == "area" and not bounded:
+        return ("inconclusive", f"area law preferred but c = {c:.3g} +- {c_err:.2g} does not "
+                f"rule out a critical chain (c + 2 err >= {SMALLEST_C:g})", evidence, flags)
     if law == "logarithmic":
         if c <= 0:
             return "inconclusive", f"unphysical central charge {c:.3g} <= 0", evidence, flags

@@ -28,16 +28,20 @@ def run(args):
 
 
 def _run(args):
+    import dataclasses
+
     from .._analyses.scaling import fit_scaling
     from ._warnings import warn_lines
 
     # a checkpoint is profiled with its spectra: the finite-chi check needs the smallest values
     prof = read_input(args.file, args, spectrum=True)
     settings = fit_options(args)
-    if "boundary" not in settings:
-        settings["boundary"] = _checkpoint_boundary(args.file, prof)
-    res = fit_scaling(prof, **settings, local_dim=args.local_dim,
-                      spectrum_report=args.spectrum_report, degeneracy_tol=args.degeneracy_tol)
+    attribute = None if "boundary" in settings else _checkpoint_boundary(args.file, prof)
+    res = fit_scaling(prof, **settings, **({"boundary": attribute} if attribute else {}),
+                      local_dim=args.local_dim, spectrum_report=args.spectrum_report,
+                      degeneracy_tol=args.degeneracy_tol)
+    if attribute:
+        res = dataclasses.replace(res, boundary_source="checkpoint attribute")
     equipartition = _equipartition(prof, args)
     warn_lines(res["flags"])
     if args.json:

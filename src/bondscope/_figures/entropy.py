@@ -192,15 +192,18 @@ def fit_entries(entries, settings, boundary=None):
     """
     from .._analyses.scaling import fit_scaling
 
-    kinds = [(settings or {}).get("boundary") or boundary or e.meta.get("boundary") or "open"
-             for e in entries]
+    given = (settings or {}).get("boundary") or boundary
+    sources = ["given" if given else "profile field" if e.profile.get("boundary") else
+               "checkpoint attribute" if e.meta.get("boundary") else "default" for e in entries]
+    kinds = [given or e.meta.get("boundary") or "open" for e in entries]
     if settings is None:
         return kinds, None
     fits = []
-    for entry, kind in zip(entries, kinds):
+    for entry, kind, source in zip(entries, kinds, sources):
         try:
-            fits.append({"label": entry.label,
-                         **fit_scaling(entry.profile, **{**settings, "boundary": kind})})
+            found = fit_scaling(entry.profile, **{**settings, "boundary": kind})
+            found = found.to_dict() if hasattr(found, "to_dict") else dict(found)
+            fits.append({"label": entry.label, **found, "boundary_source": source})
         except ValueError as exc:
             fits.append({"label": entry.label, "error": one_line(exc)})
     return kinds, fits
