@@ -21,7 +21,7 @@ Goal (issue 10): block-wise >= 5x faster than dense, peak <= 0.25x.
 ``--pattern``: the bond-charge inference of one chi x 2 x chi block-structured
 tensor, bondscope's vectorised numpy form against a numba loop over the
 entries (defined here), best of 5 after a first call; and the numba loop's
-first call (import and compile).
+first call (import and compile).  Needs numba: ``pip install -e ".[bench]"``.
 """
 
 import argparse
@@ -172,6 +172,9 @@ def main(argv=None):
                     help="only the bond-charge inference: numba against numpy")
     args = ap.parse_args(argv)
     if args.pattern:
+        import importlib.util
+        if importlib.util.find_spec("numba") is None:
+            ap.error('--pattern needs numba: pip install -e ".[bench]"')
         pattern(args.chi)
         return
     with tempfile.TemporaryDirectory(dir=args.dir) as tmp:

@@ -43,7 +43,7 @@ CheckpointError  -- a checkpoint or profile that cannot be read as it stands
 MemoryLimitError -- work refused by the pre-flight memory estimate
 UnnormalisedStateWarning -- the stored state was not normalised (it is profiled normalised)
 
-Heavy dependencies (scipy, numba, matplotlib, dask) are imported only when a
+Heavy dependencies (scipy, matplotlib, dask) are imported only when a
 function that needs them runs.
 """
 
