@@ -3,7 +3,6 @@
 import functools
 
 import h5py
-import numpy as np
 import pytest
 
 import bondscope
