@@ -32,6 +32,7 @@ write_report       -- one self-contained HTML page for a batch results directory
 Analyses
 --------
 fit_scaling          -- central charge, constant and scaling law (Calabrese-Cardy fit)
+ScalingFit           -- the typed result of fit_scaling (law, c and its error parts, saturation)
 bond_budget          -- smallest bond dimension per cut for an error target, and its cost
 compare_profiles     -- per-cut differences, convergence and extrapolation over runs
 spectrum_diagnostics -- entanglement gap and degeneracy pattern per cut
@@ -42,6 +43,7 @@ Errors
 CheckpointError  -- a checkpoint or profile that cannot be read as it stands
 MemoryLimitError -- work refused by the pre-flight memory estimate
 UnnormalisedStateWarning -- the stored state was not normalised (it is profiled normalised)
+ResolutionError  -- a budget target below what the stored spectra can certify (a ValueError)
 
 Heavy dependencies (scipy, matplotlib, dask) are imported only when a
 function that needs them runs.
@@ -75,6 +77,8 @@ _LAZY = {
     "compare_profiles": "bondscope._analyses.comparison",
     "spectrum_diagnostics": "bondscope._analyses.diagnostics",
     "charge_equipartition": "bondscope._analyses.equipartition",
+    "ScalingFit": "bondscope._analyses.scaling",
+    "ResolutionError": "bondscope._analyses.budget",
 }
 
 __all__ = ["CheckpointError", "MemoryLimitError", "__version__", *_LAZY]
