@@ -286,7 +286,10 @@ def has_block_layout(path):
     except CheckpointError:
         return False
     with f:
-        return bool(find_block_layouts(f))
+        try:
+            return bool(find_block_layouts(f))
+        except (OSError, RuntimeError):     # unreadable groups: open_source says so
+            return False
 
 
 def open_blocks(path, *, pattern=None, form=None, charges=None, modulus=None, axes=None,

@@ -1,19 +1,23 @@
 """Checkpoints: HDF5 files opened read-only, searched by metadata, read one tensor at a time."""
 
 import re
+import stat
 from pathlib import Path
 
 import numpy as np
 
 from ._errors import CheckpointError
-from ._source import (AmplitudeSource, ChainSource, numeric_dtype, parse_axes, resolve_axes,
-                      split_local_dims)
+from ._readcost import read_buffer_bytes
+from ._source import AmplitudeSource, ChainSource, numeric_dtype, resolve_axes, split_local_dims
+from ._vectorshape import pairs_as_complex, power_hint, vector_shape
 
 __all__ = ["open_source", "scan", "Candidate"]
 
 _NUMBER = re.compile(r"\d+")
 _COMPLEX_FIELDS = (("r", "i"), ("re", "im"), ("real", "imag"))
 _LISTED = 8
+# longer digit runs are not site numbers (and int() refuses past 4300 digits)
+_SITE_DIGITS = 18
 
 
 class Candidate:
@@ -37,6 +41,10 @@ def _open(path):
         raise CheckpointError(f"{path}: no such file")
     if path.is_dir():
         raise CheckpointError(f"{path}: is a directory, expected an HDF5 checkpoint")
+    mode = path.stat().st_mode
+    if not stat.S_ISREG(mode):
+        raise CheckpointError(f"{path}: is a {_file_kind(mode)}, not a regular file; expected "
+                              "an HDF5 checkpoint (copy the data to a file first)")
     try:
         with open(path, "rb") as f:
             head = f.read(8)
@@ -52,6 +60,22 @@ def _open(path):
         hint = " - the file looks truncated (an interrupted copy or write?)" \
             if "truncated" in reason or "eof" in reason.lower() else ""
         raise CheckpointError(f"{path}: not a readable HDF5 file ({reason}){hint}") from None
+
+
+def _file_kind(mode):
+    kinds = ((stat.S_ISFIFO, "FIFO (named pipe)"), (stat.S_ISSOCK, "socket"),
+             (stat.S_ISCHR, "character device"), (stat.S_ISBLK, "block device"))
+    return next((name for test, name in kinds if test(mode)), "special file")
+
+
+def _short(name, keep=60):
+    """A name cut to about ``keep`` characters for messages."""
+    return name if len(name) <= keep else f"{name[:keep - 20]}...{name[-16:]} " \
+        f"({len(name)} characters)"
+
+
+def _site_number(digits):
+    return int(digits) if len(digits.lstrip("0")) <= _SITE_DIGITS else None
 
 
 def _stored_dtype(dset, where):
@@ -81,7 +105,7 @@ def _reader(dset, dtype):
                 out.imag = dset.fields(im_name)[()]
                 return out
             return dset[()]
-        except OSError as exc:
+        except (OSError, RuntimeError) as exc:
             raise CheckpointError(f"{dset.file.filename}: dataset {where} cannot be read "
                                   f"({' '.join(str(exc).split())}); the file may be "
                                   "truncated or damaged") from None
@@ -96,8 +120,18 @@ def _datasets(f):
     def visit(name, obj):
         if isinstance(obj, h5py.Dataset):
             found.append("/" + name)
-    f.visititems(visit)
+    try:
+        f.visititems(visit)
+    except (OSError, RuntimeError, KeyError) as exc:
+        raise unreadable_structure(f, exc) from None
     return found
+
+
+def unreadable_structure(f, exc):
+    """CheckpointError for groups or links HDF5 could not walk (a file rewritten while read)."""
+    return CheckpointError(f"{f.filename}: the file's groups could not be read "
+                           f"({' '.join(str(exc).split())}); if another program is writing it, "
+                           "retry when it has finished, otherwise the file is damaged")
 
 
 def _family(f, pattern, paths=None):
@@ -112,7 +146,12 @@ def _family(f, pattern, paths=None):
     for p in (paths if paths is not None else _datasets(f)):
         m = regex.match(p)
         if m:
-            hits[int(m.group(1))] = p
+            number = _site_number(m.group(1))
+            if number is None:
+                raise CheckpointError(f"{f.filename}: dataset {_short(p)} matches {pattern} "
+                                      f"with a site number of {len(m.group(1))} digits; "
+                                      "expected site numbers 0, 1, 2, ...")
+            hits[number] = p
     return dict(sorted(hits.items()))
 
 
@@ -122,10 +161,12 @@ def _numbering_problem(numbers, pattern):
     start = numbers[0]
     if start not in (0, 1):
         return f"sites in {pattern} start at {start}; expected numbering from 0 or from 1"
-    missing = sorted(set(range(start, numbers[-1] + 1)) - set(numbers))
-    if missing:
-        return (f"site {missing[0]} of {pattern} is missing (found sites {start}.."
-                f"{numbers[-1]} with {len(missing)} gap(s))")
+    # numbers are sorted and distinct: the gaps are counted, never listed
+    gaps = numbers[-1] - start + 1 - len(numbers)
+    if gaps:
+        first = next(start + i for i, n in enumerate(numbers) if n != start + i)
+        return (f"site {first} of {pattern} is missing (found sites {start}.."
+                f"{numbers[-1]} with {gaps} missing)")
     return None
 
 
@@ -142,52 +183,84 @@ def _chain_candidate(f, pattern, hits, axes):
     return cand
 
 
-def scan(f, local_dim=None):
+def scan(f, local_dim=None, axes=None, complex_parts="auto"):
     """All plausible layouts in an open file, from metadata alone.
+
+    Parameters
+    ----------
+    f : h5py.File
+    local_dim, axes, complex_parts
+        As :func:`open_source`: a family is checked under the given axis order.
 
     Returns
     -------
     found : list of Candidate
         Chain families (a pattern whose members' bonds chain) and state-vector
-        datasets (1-D of a length that splits into local dimensions, or N-D with
+        datasets (flat of a length that splits into local dimensions, or N-D with
         small axes) outside any family.
     broken : list of Candidate
-        Families of numbered rank-2/3 datasets whose bonds do not chain, with the reason.
+        Families of numbered rank-2/3 datasets whose bonds do not chain, and
+        flat real/complex datasets whose length needs another ``--local-dim``,
+        with the reason.
     """
     paths = _datasets(f)
-    patterns = {}
+    patterns, oversized = {}, {}
     for p in paths:
-        if f[p].ndim not in (2, 3):
+        shape = f[p].shape
+        if len(shape) not in (2, 3) or _column(shape):
             continue
         for m in _NUMBER.finditer(p):
             pat = p[:m.start()] + "{site}" + p[m.end():]
-            patterns.setdefault(pat, {})[int(m.group())] = p
+            number = _site_number(m.group())
+            if number is None:
+                oversized.setdefault(pat, (p, len(m.group())))
+            else:
+                patterns.setdefault(pat, {})[number] = p
     found, broken, members = [], [], set()
     for pat, hits in patterns.items():
-        if len(hits) < 2:
+        if len(hits) + (pat in oversized) < 2:
             continue
-        cand = _chain_candidate(f, pat, dict(sorted(hits.items())), None)
+        cand = _chain_candidate(f, pat, dict(sorted(hits.items())), axes)
+        if pat in oversized:
+            name, digits = oversized[pat]
+            cand.problem = (f"{f.filename}: dataset {_short(name)} of {pat} has a site "
+                            f"number of {digits} digits; expected site numbers 0, 1, 2, ...")
         (broken if cand.problem else found).append(cand)
         members.update(cand.datasets)
     for p in paths:
-        if p in members:
-            continue
-        d = f[p]
-        try:
-            dtype = _stored_dtype(d, p)
-        except CheckpointError:
-            continue
-        if dtype.kind not in "fc":
-            continue
-        if d.ndim == 1:
-            try:
-                split_local_dims(d.shape[0], local_dim, p)
-            except (CheckpointError, ValueError):
-                continue
-        elif d.ndim < 2 or not all(2 <= n <= 16 for n in d.shape):
-            continue
-        found.append(Candidate("state-vector", p, [p]))
+        if p not in members:
+            cand = _vector_candidate(f[p], p, local_dim, complex_parts)
+            if cand is not None:
+                (broken if cand.problem else found).append(cand)
     return found, broken
+
+
+def _column(shape):
+    """A (D, 1) column or (1, D) row with D > 16: a vector, never an end tensor."""
+    return len(shape) == 2 and min(shape) == 1 and max(shape) > 16
+
+
+def _vector_candidate(d, p, local_dim, complex_parts):
+    """A state-vector Candidate for dataset ``d``; with a problem when only --local-dim is
+    wrong; None when it is no state vector."""
+    try:
+        dtype = _stored_dtype(d, p)
+        if dtype.kind not in "fc" or d.ndim == 0:
+            return None
+        amps = vector_shape(d.shape, dtype, complex_parts, p).amplitudes
+    except CheckpointError:
+        return None
+    if len(amps) == 1:
+        try:
+            split_local_dims(amps[0], local_dim, p)
+        except CheckpointError:
+            tried = 2 if local_dim is None else local_dim
+            hint = power_hint(amps[0], tried) if isinstance(tried, int) else None
+            return Candidate("state-vector", p, [p], problem=(
+                f"{d.file.filename}: {p} holds {amps[0]} amplitudes; {hint}")) if hint else None
+    elif not all(2 <= n <= 16 for n in amps):
+        return None
+    return Candidate("state-vector", p, [p])
 
 
 def _describe(cands):
@@ -197,23 +270,28 @@ def _describe(cands):
 
 
 def open_source(path, *, state=None, tensors=None, local_dim=None, axes=None,
-                precision="promote"):
+                complex_parts="auto", precision="promote"):
     """Open a checkpoint read-only and return its validated source.
 
     Parameters
     ----------
     path : str or Path
-        HDF5 checkpoint.
+        HDF5 checkpoint (a regular file).
     state : str, optional
-        Dataset holding a state vector (1-D with ``local_dim``, or shaped (d_1, ..., d_N)).
+        Dataset holding a state vector: flat (also a (D, 1) column or (1, D) row)
+        with ``local_dim``, or shaped (d_1, ..., d_N).
     tensors : str, optional
         Site tensor pattern with a ``{site}`` placeholder, e.g. ``/run/psi/T{site}``;
         sites numbered consecutively from 0 or 1, ordered numerically.
     local_dim : int or list of int, optional
-        Local dimension(s) of a 1-D state vector (default 2).
+        Local dimension(s) of a flat state vector (default 2).
     axes : str or tuple, optional
         Stored axis order of the site tensors, a permutation of left,phys,right.
-        Inferred from how the bonds chain when omitted.
+        Inferred from how the bonds chain when omitted; honoured by detection.
+    complex_parts : {"auto", "last-axis", "none"}
+        Real and imaginary parts of a state vector in a last axis of length 2:
+        found from the shape (a real (D, 2) array with D > 16), forced, or never
+        (see :func:`bondscope._vectorshape.vector_shape`).
     precision : {"promote", "stored"}
         Profile single-precision data in double precision (default) or as stored.
 
@@ -221,15 +299,18 @@ def open_source(path, *, state=None, tensors=None, local_dim=None, axes=None,
     -------
     ChainSource or AmplitudeSource
         Holds the file open; call ``close()`` (or use it as a context manager).
+        ``read_buffer`` is the most memory HDF5 and the (re, im) combination
+        need besides one returned array (see :mod:`bondscope._readcost`).
 
     Raises
     ------
     CheckpointError
-        Not HDF5, truncated, no or several layouts, missing dataset or site, wrong
-        rank, bonds that do not meet, non-numeric dtype, bad lengths.
+        Not a regular HDF5 file, truncated, unreadable groups, no or several
+        layouts, missing dataset or site, wrong rank, zero-length axes, bonds
+        that do not meet, non-numeric dtype, bad lengths, oversized site numbers.
     ValueError
         Contradictory or malformed options (both ``state`` and ``tensors``,
-        unknown axis word, pattern without ``{site}``).
+        unknown axis word, pattern without ``{site}``, local dimension < 2).
 
     Notes
     -----
@@ -237,13 +318,17 @@ def open_source(path, *, state=None, tensors=None, local_dim=None, axes=None,
     Rank-2 end tensors are read with the axis words minus the missing bond: the
     first site as (phys, right) and the last as (left, phys) in the given order.
     """
-    if state is not None and tensors is not None:
-        raise ValueError("give either a state dataset or a tensor pattern, not both")
-    if axes is not None:
-        parse_axes(axes)
+    from ._options import ProfileOptions
+
+    # the options' own checks, with messages naming parameter and flag
+    ProfileOptions(state=state, tensors=tensors, local_dim=local_dim, axes=axes,
+                   complex_parts=complex_parts, precision=precision)
     f = _open(path)
     try:
-        src = _pick(f, Path(path), state, tensors, local_dim, axes, precision)
+        src = _pick(f, Path(path), state, tensors, local_dim, axes, complex_parts, precision)
+    except (OSError, RuntimeError, KeyError) as exc:      # h5py's errors for a changing file
+        f.close()
+        raise unreadable_structure(f, exc) from None
     except BaseException:
         f.close()
         raise
@@ -251,10 +336,10 @@ def open_source(path, *, state=None, tensors=None, local_dim=None, axes=None,
     return src
 
 
-def _pick(f, path, state, tensors, local_dim, axes, precision):
+def _pick(f, path, state, tensors, local_dim, axes, parts, precision):
     if state is not None:
         name = state if state.startswith("/") else "/" + state
-        return _state_source(f, path, name, local_dim, precision)
+        return _state_source(f, path, name, local_dim, parts, precision)
     if tensors is not None:
         hits = _family(f, tensors)
         cand = _chain_candidate(f, tensors, hits, axes)
@@ -262,47 +347,60 @@ def _pick(f, path, state, tensors, local_dim, axes, precision):
             raise CheckpointError(cand.problem if cand.problem.startswith(str(f.filename))
                                   else f"{path}: {cand.problem}")
         return _chain_source(f, path, cand, precision)
-    cands, broken = scan(f, local_dim)
+    cands, broken = scan(f, local_dim, axes, parts)
     if not cands and broken:
         problem = broken[0].problem
         raise CheckpointError(f"{problem}; or name another layout with --state / --tensors"
                               if problem.startswith(str(f.filename)) else f"{path}: {problem}")
     if not cands:
+        forced = " (--complex-parts last-axis counts only real datasets with a last axis of " \
+            "length 2)" if parts == "last-axis" else ""
         raise CheckpointError(f"{path}: found no state-vector dataset and no chain of site "
-                              "tensors; name the layout with --state DATASET or "
+                              f"tensors{forced}; name the layout with --state DATASET or "
                               "--tensors PATTERN")
     if len(cands) > 1:
         raise CheckpointError(f"{path}: several layouts found: {_describe(cands)}; "
                               "choose one with the flag shown")
     cand = cands[0]
     if cand.kind == "state-vector":
-        return _state_source(f, path, cand.spec, local_dim, precision)
-    if axes is not None:
-        cand = _chain_candidate(f, cand.spec, dict(zip(cand.labels, cand.datasets)), axes)
-        if cand.problem:
-            raise CheckpointError(cand.problem)
+        return _state_source(f, path, cand.spec, local_dim, parts, precision)
     return _chain_source(f, path, cand, precision)
 
 
-def _state_source(f, path, name, local_dim, precision):
+def _state_source(f, path, name, local_dim, parts, precision):
     import h5py
 
     obj = f.get(name)
     if not isinstance(obj, h5py.Dataset):
-        listed = ", ".join(_datasets(f)[:_LISTED]) or "none"
+        listed = ", ".join(_short(p) for p in _datasets(f)[:_LISTED]) or "none"
         raise CheckpointError(f"{path}: no dataset {name}; datasets here: {listed}")
     where = f"{path}:{name}"
     dtype = _stored_dtype(obj, where)
-    if obj.ndim == 1:
-        dims = split_local_dims(obj.shape[0], local_dim, where)
-    elif obj.ndim >= 2:
-        dims = list(obj.shape)
+    if obj.ndim == 0:
+        raise CheckpointError(f"{where}: a scalar, expected a state vector")
+    shape = vector_shape(obj.shape, dtype, parts, where)
+    if shape.flat:
+        dims = split_local_dims(shape.amplitudes[0], local_dim, where)
+    else:
+        dims = list(shape.amplitudes)
         if local_dim is not None and np.atleast_1d(local_dim).tolist() not in (dims, dims[:1]):
             raise CheckpointError(f"{where}: shaped {obj.shape}, which does not match "
                                   f"--local-dim {local_dim}")
-    else:
-        raise CheckpointError(f"{where}: a scalar, expected a state vector")
-    return AmplitudeSource(dims, dtype, _reader(obj, dtype), where, precision)
+    read, buffer = _reader(obj, dtype), read_buffer_bytes(obj)
+    if shape.pairs:
+        if dtype not in (np.float32, np.float64):
+            buffer += obj.size * 8                    # converted to float64 first
+        dtype = np.dtype(np.complex64 if dtype == np.float32 else np.complex128)
+        read = _as_complex(read)
+    elif obj.dtype.names:
+        buffer += obj.size * dtype.itemsize // 2     # one part at a time
+    src = AmplitudeSource(dims, dtype, read, where, precision, owned=True)
+    src.read_buffer = buffer
+    return src
+
+
+def _as_complex(read):
+    return lambda *args: pairs_as_complex(read(*args))
 
 
 def _chain_source(f, path, cand, precision):
@@ -310,5 +408,8 @@ def _chain_source(f, path, cand, precision):
     dtypes = [_stored_dtype(d, f"{path}:{d.name}") for d in dsets]
     dtype = np.result_type(*dtypes)
     readers = [_reader(d, t) for d, t in zip(dsets, dtypes)]
-    return ChainSource([d.shape for d in dsets], dtype, lambda i: readers[i](), cand.labels,
-                       cand.axes, f"{path}:{cand.spec}", precision)
+    src = ChainSource([d.shape for d in dsets], dtype, lambda i: readers[i](), cand.labels,
+                      cand.axes, f"{path}:{cand.spec}", precision)
+    src.read_buffer = max(read_buffer_bytes(d) + (d.size * t.itemsize // 2 if d.dtype.names
+                                                  else 0) for d, t in zip(dsets, dtypes))
+    return src

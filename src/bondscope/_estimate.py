@@ -129,7 +129,8 @@ def estimate(src, route=None, truncating=False, charges=False):
     MPS: two sweeps may run at once, each holding a site tensor as read (plus
     the stored copy when it is converted or transposed), its product with a
     bond matrix, and a few bond matrices; plus the in-memory part of the bond
-    store (at most its budget, ``_kernels.store.STORE_BYTES``); truncation tracking adds two tensor-sized blocks.
+    store (at most its budget, ``_kernels.store.STORE_BYTES``); truncation tracking adds
+    two tensor-sized blocks.
     Work sums d chi_l chi_r (chi_l + chi_r) per site and chi^3 per bond SVD.
     State vectors: the larger of the read (the amplitudes, plus the stored
     array while it is converted) and the computation.  gram holds the state,
@@ -138,6 +139,11 @@ def estimate(src, route=None, truncating=False, charges=False):
     Truncation tracking adds three state-sized arrays (the normalised copy, the
     block being decomposed and its right singular vectors).  Checked against
     measured peaks by ``scripts/bench.py``.
+
+    Both add the source's ``read_buffer`` (HDF5 chunk decompression and (re, im)
+    combination, :mod:`bondscope._readcost`) to each read; the figure is the
+    estimate for one checkpoint, so ``detail["read_buffer_bytes"]`` and
+    ``memory`` are per checkpoint (a batch running W at once needs W times).
     """
     from ._kernels.amplitudes import gram_matrix_sizes
     from ._kernels.store import resident_bytes
@@ -165,7 +171,10 @@ def estimate(src, route=None, truncating=False, charges=False):
 
             memory += CHARGE_SWEEP_TENSORS * tensor
             flops *= CHARGE_SWEEP_WORK
-        detail = {"largest_tensor_bytes": tensor, "bond_matrix_bytes": bond}
+        buffer = getattr(src, "read_buffer", 0)
+        memory += 2 * buffer            # one read in flight per sweep
+        detail = {"largest_tensor_bytes": tensor, "bond_matrix_bytes": bond,
+                  "read_buffer_bytes": buffer}
     else:
         dims = src.local_dims
         total = prod(dims)
@@ -177,7 +186,8 @@ def estimate(src, route=None, truncating=False, charges=False):
             best = min(best, max(left, total // left))
         # the read: the amplitudes, the stored array while it is converted, and the
         # NaN/Inf check's boolean mask
-        read = state + (total * stored if stored != item else 0) + total
+        buffer = getattr(src, "read_buffer", 0)
+        read = state + (total * stored if stored != item else 0) + total + buffer
         work = 128 * best * item        # LAPACK workspace and the values, O(n)
         if route == "gram" and not charges:
             lefts, rights = gram_matrix_sizes(dims)
@@ -192,7 +202,8 @@ def estimate(src, route=None, truncating=False, charges=False):
         if truncating:
             memory += 3 * state
             flops += 4 * total * best
-        detail = {"state_bytes": state, "middle_matrix": [total // best, best]}
+        detail = {"state_bytes": state, "middle_matrix": [total // best, best],
+                  "read_buffer_bytes": buffer}
     return Estimate(memory, flops * cplx, detail)
 
 
@@ -209,6 +220,13 @@ def check_memory(est, max_memory=None):
     if limit is None:
         limit, what = available_memory(), "available memory"
     if limit is not None and est.memory > limit:
+        buffer = est.detail.get("read_buffer_bytes", 0)
+        if 2 * buffer >= est.memory:
+            raise MemoryLimitError(
+                f"profiling needs about {format_bytes(est.memory)} but {what} is "
+                f"{format_bytes(limit)}: {format_bytes(buffer)} of it for a chunk HDF5 "
+                "decompresses whole; rewrite the checkpoint with smaller chunks (h5repack "
+                "-l CHUNK=...) or raise --max-memory")
         raise MemoryLimitError(
             f"profiling needs about {format_bytes(est.memory)} but {what} is "
             f"{format_bytes(limit)}; free memory, raise --max-memory, use a machine with more "

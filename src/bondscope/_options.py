@@ -17,7 +17,7 @@ from numbers import Integral, Real
 __all__ = ["ProfileOptions", "LAYOUT", "BLOCK_LAYOUT", "MEASURES", "RESOURCES",
            "option_label"]
 
-LAYOUT = ("state", "tensors", "local_dim", "axes")
+LAYOUT = ("state", "tensors", "local_dim", "axes", "complex_parts")
 # block-sparse checkpoints (bondscope._blocksparse)
 BLOCK_LAYOUT = ("blocks", "block_form", "charge_flow")
 MEASURES = ("renyi", "base", "spectrum", "bond_dim", "weight_tol", "route", "precision",
@@ -84,6 +84,9 @@ class ProfileOptions:
     axes : str or sequence of str, optional
         Stored axis order of the site tensors, a permutation of left,phys,right
         (inferred from how the bonds chain when omitted).
+    complex_parts : {"auto", "last-axis", "none"}
+        A state vector's real and imaginary parts in a last axis of length 2:
+        found from the shape (default), forced, or never.
     renyi : str, float or sequence of them
         Rényi orders, e.g. ``("0.5", 2, "inf")``; kept as the keys they are written under.
     base : "e" or float
@@ -138,6 +141,7 @@ class ProfileOptions:
     tensors: str = None
     local_dim: object = None
     axes: tuple = None
+    complex_parts: str = "auto"
     renyi: tuple = ()
     base: object = "e"
     spectrum: object = False
@@ -185,7 +189,10 @@ class ProfileOptions:
                 raise ValueError(f"{option_label('weight_tol')} must be in [0, 1), "
                                  f"found {tol!r}")
             put("weight_tol", float(tol))
-        for name, allowed in (("route", ROUTES), ("precision", PRECISIONS)):
+        from ._vectorshape import PARTS
+
+        for name, allowed in (("route", ROUTES), ("precision", PRECISIONS),
+                              ("complex_parts", PARTS)):
             if getattr(self, name) not in allowed:
                 raise ValueError(f"{option_label(name)} must be one of {', '.join(allowed)}, "
                                  f"found {getattr(self, name)!r}")

@@ -10,6 +10,7 @@ import numpy as np
 
 from ._document import FORMAT, VERSION, Profile
 from ._estimate import check_memory, estimate
+from ._exponent import norm_text, stored_norm
 from ._measure import discarded_weight, kept_rank, spectrum_measures
 from ._options import ProfileOptions
 
@@ -185,8 +186,17 @@ def profile(source, options=None, *, progress=False, **kwargs):
             opts = opts.replace(route=route)
         with _threads(opts.threads), _progress(steps(src), progress, "profile") as bar:
             result, bonds = kernel(src, opts, bar.update if bar is not None else None)
-        _warn_norm(src, result.norm)
+        # past the double range: norm = mantissa x 2^norm_exponent (bondscope._exponent)
+        norm = stored_norm(result.norm, getattr(src, "scale_exponent", 0))
+        if norm[1]:
+            warnings.warn(f"{src.name}: state norm is {norm_text(*norm)}; profiled the "
+                          "normalised state", UnnormalisedStateWarning, stacklevel=2)
+        else:
+            _warn_norm(src, norm[0])
         doc = _document(src, opts, result, bonds)
+        doc["norm"] = norm[0]
+        if norm[1]:
+            doc["norm_exponent"] = norm[1]
     return Profile(doc)
 
 

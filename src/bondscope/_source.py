@@ -10,6 +10,8 @@ from math import prod
 import numpy as np
 
 from ._errors import CheckpointError
+from ._exponent import amplitude_shift, shifted, tensor_shift
+from ._vectorshape import power_hint
 
 __all__ = ["ChainSource", "AmplitudeSource", "AXIS_WORDS", "parse_axes", "chain_from_arrays",
            "amplitudes_from_array", "compute_dtype", "numeric_dtype"]
@@ -61,26 +63,32 @@ def _canonical(shape, words, first, last):
 
 
 def _chain_problem(shapes, labels, words):
-    """First reason the shapes do not form an open chain under ``words``, or None."""
+    """(first reason the shapes do not form an open chain under ``words`` or None,
+    number of checks passed before it: ranks, left end, each bond, right end)."""
     n = len(shapes)
     canon = []
     for i, shape in enumerate(shapes):
         c = _canonical(shape, words, i == 0, i == n - 1)
         if c is None:
             allowed = "3 (or 2 at an end of the chain)"
-            return f"site {labels[i]}: tensor has rank {len(shape)} {tuple(shape)}, expected rank {allowed}"
+            return (f"site {labels[i]}: tensor has rank {len(shape)} {tuple(shape)}, "
+                    f"expected rank {allowed}"), i
+        if 0 in c:
+            return (f"site {labels[i]}: tensor shaped {tuple(shape)} has an axis of length "
+                    "0; expected bonds and local dimension >= 1"), i
         canon.append(c)
     if canon[0][0] != 1:
         return (f"site {labels[0]}: left bond is {canon[0][0]}, expected 1 at the open end "
-                f"of the chain (shape {tuple(shapes[0])}, axes {','.join(words)})")
-    if canon[-1][2] != 1:
-        return (f"site {labels[-1]}: right bond is {canon[-1][2]}, expected 1 at the open end "
-                f"of the chain (shape {tuple(shapes[-1])}, axes {','.join(words)})")
+                f"of the chain (shape {tuple(shapes[0])}, axes {','.join(words)})"), n
     for i in range(1, n):
         if canon[i][0] != canon[i - 1][2]:
             return (f"site {labels[i]}: left bond {canon[i][0]} does not meet site "
-                    f"{labels[i - 1]}'s right bond {canon[i - 1][2]}")
-    return None
+                    f"{labels[i - 1]}'s right bond {canon[i - 1][2]} (the bond between sites "
+                    f"{labels[i - 1]} and {labels[i]})"), n + i
+    if canon[-1][2] != 1:
+        return (f"site {labels[-1]}: right bond is {canon[-1][2]}, expected 1 at the open end "
+                f"of the chain (shape {tuple(shapes[-1])}, axes {','.join(words)})"), 2 * n
+    return None, 2 * n + 1
 
 
 def resolve_axes(shapes, labels, axes=None, where="chain"):
@@ -96,16 +104,19 @@ def resolve_axes(shapes, labels, axes=None, where="chain"):
                               "least 2 sites to have a cut")
     if axes is not None:
         words = parse_axes(axes)
-        problem = _chain_problem(shapes, labels, words)
+        problem = _chain_problem(shapes, labels, words)[0]
         if problem:
             raise CheckpointError(f"{where}: {problem}")
         return words
-    fits = [w for w in permutations(AXIS_WORDS) if _chain_problem(shapes, labels, w) is None]
+    tried = {w: _chain_problem(shapes, labels, w) for w in permutations(AXIS_WORDS)}
+    fits = [w for w, (problem, _) in tried.items() if problem is None]
     if AXIS_WORDS in fits or len(fits) == 1:
         return AXIS_WORDS if AXIS_WORDS in fits else fits[0]
     if not fits:
-        raise CheckpointError(f"{where}: {_chain_problem(shapes, labels, AXIS_WORDS)}; no axis "
-                              "order makes the bonds chain (set --axes if the order is unusual)")
+        # blame the order that chains furthest (the stored order, bar the fault)
+        best = max(tried, key=lambda w: (tried[w][1], w == AXIS_WORDS))
+        raise CheckpointError(f"{where}: {tried[best][0]} (axes {','.join(best)}, the order "
+                              "that chains furthest); no axis order makes the bonds chain")
     listed = "; ".join(",".join(w) for w in fits)
     raise CheckpointError(f"{where}: the bonds chain under several axis orders ({listed}); "
                           "choose one with --axes")
@@ -145,7 +156,10 @@ class ChainSource(_Held):
     Notes
     -----
     ``tensor(i)`` returns an array shaped (left, phys, right) in the compute
-    dtype; only that tensor is in memory.
+    dtype; only that tensor is in memory.  A tensor whose size would overflow
+    or underflow the sweep's products is returned times an exact power of two
+    (:func:`bondscope._exponent.tensor_shift`); ``scale_exponent`` sums the
+    exponents removed from the tensors read so far.
     """
 
     kind = "mps"
@@ -161,6 +175,12 @@ class ChainSource(_Held):
         self.labels = list(labels)
         self.name = name
         self._read = read
+        self._shifts = {}
+
+    @property
+    def scale_exponent(self):
+        """log2 of (stored state / state the tensors returned describe)."""
+        return sum(self._shifts.values())
 
     @property
     def sites(self):
@@ -190,7 +210,9 @@ class ChainSource(_Held):
         words = self.axes if raw.ndim == 3 else \
             [w for w in self.axes if w != ("left" if i == 0 else "right")]
         a = raw.transpose([words.index(w) for w in AXIS_WORDS if w in words])
-        return np.ascontiguousarray(a.reshape(self.shapes[i]), dtype=self.compute_dtype)
+        a = np.ascontiguousarray(a.reshape(self.shapes[i]), dtype=self.compute_dtype)
+        self._shifts[i] = shift = tensor_shift(a, self.sites)
+        return shifted(a, shift)
 
 
 class AmplitudeSource(_Held):
@@ -205,16 +227,30 @@ class AmplitudeSource(_Held):
         ``read()`` returns the amplitudes (any shape with prod(local_dims) entries,
         site 1 the slowest index).
     name : str
+    owned : bool
+        ``read()`` returns a fresh array the source may overwrite (a file read);
+        otherwise (the caller's array) rescaling makes a copy.
+
+    Notes
+    -----
+    Amplitudes whose sum of squares would overflow or underflow are returned
+    times an exact power of two (:func:`bondscope._exponent.amplitude_shift`),
+    recorded in ``scale_exponent``.
     """
 
     kind = "state-vector"
 
-    def __init__(self, local_dims, dtype, read, name, precision="promote"):
+    def __init__(self, local_dims, dtype, read, name, precision="promote", owned=False):
         self.local_dims = [int(d) for d in local_dims]
+        if min(self.local_dims, default=0) < 1:
+            raise CheckpointError(f"{name}: shaped {tuple(self.local_dims)}, which holds no "
+                                  "amplitudes; expected every axis (local dimension) >= 1")
         self.dtype = np.dtype(dtype)
         self.compute_dtype = compute_dtype(self.dtype, precision)
         self.name = name
         self._read = read
+        self._owned = owned
+        self.scale_exponent = 0
 
     @property
     def sites(self):
@@ -237,7 +273,9 @@ class AmplitudeSource(_Held):
         a = np.ascontiguousarray(raw.reshape(-1), dtype=self.compute_dtype)
         if not np.isfinite(a).all():
             raise CheckpointError(f"{self.name}: the state vector holds NaN or Inf values")
-        return a
+        self.scale_exponent = amplitude_shift(a)
+        mine = self._owned or not np.may_share_memory(a, raw)
+        return shifted(a, self.scale_exponent, inplace=mine)
 
 
 def split_local_dims(size, local_dim, where):
@@ -262,9 +300,9 @@ def split_local_dims(size, local_dim, where):
         rest //= d
         n += 1
     if rest != 1 or n < 2:
+        fix = power_hint(size, d) or "set --local-dim (an integer or a comma list per site)"
         raise CheckpointError(f"{where}: length {size} is not a power d^N of the local "
-                              f"dimension d={d} with N >= 2; set --local-dim (an integer or a "
-                              "comma list per site)")
+                              f"dimension d={d} with N >= 2; {fix}")
     return [d] * n
 
 

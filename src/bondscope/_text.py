@@ -115,4 +115,8 @@ def inspect_text(info):
               f"  estimate      {format_bytes(est['memory_bytes'])} memory, "
               f"about {est['seconds']:.2g} s"
               + (f" (available memory {format_bytes(avail)})" if avail is not None else "")]
+    buffer = est.get("detail", {}).get("read_buffer_bytes")
+    if buffer:
+        lines.append(f"  of which      {format_bytes(buffer)} per read for HDF5 chunks "
+                     "decompressed whole")
     return "\n".join(lines)

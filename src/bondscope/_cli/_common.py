@@ -79,6 +79,10 @@ FLAGS = {
              "(default 2)")),
     "axes": ("layout", ("--axes",), dict(
         metavar="ORDER", help="axis order of the site tensors, a permutation of left,phys,right")),
+    "complex_parts": ("layout", ("--complex-parts",), dict(
+        metavar="HOW", default="auto",
+        help="state vector stored as real numbers with (re, im) in a last axis of length 2: "
+             "auto (found from the shape, default), last-axis (force) or none")),
     # block-sparse checkpoints
     "blocks": ("layout", ("--blocks",), dict(
         metavar="PATTERN", help="block-sparse MPS: site groups, with a {site} placeholder, "
@@ -146,7 +150,8 @@ FLAGS = {
              "SU(2) form sqrt(ln x)/x^(1/2), or auto (default: chosen by AICc)")),
 }
 
-LAYOUT_FLAGS = ("state", "tensors", "local_dim", "axes", "blocks", "block_form", "charge_flow")
+LAYOUT_FLAGS = ("state", "tensors", "local_dim", "axes", "complex_parts", "blocks", "block_form",
+                "charge_flow")
 MEASURE_FLAGS = ("renyi", "base", "spectrum", "bond_dim", "weight_tol", "route", "precision",
                  "charges", "modulus")
 RESOURCE_FLAGS = ("max_memory", "scratch", "threads", "quiet")
