@@ -38,7 +38,7 @@ def META():
 
 
 @functools.lru_cache(maxsize=None)
-def xx_series(L=24, chis=(3, 4, 6, 8)):
+def xx_series(L=16, chis=(3, 4, 6)):
     """Open XX chain by DMRG (scripts/groundstate.py) at several chi, with the largest
     discarded weight of each run; the exact entropies from the free-fermion solution."""
     docs = []

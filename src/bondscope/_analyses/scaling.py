@@ -351,10 +351,11 @@ def fit_scaling(source, *, boundary=None, window=None, corrections=None, parity_
                                        0.5).coef[0]) - c)
     sat = finite_chi(prof, l)
     sat_part, sat_unknown = _saturation_part(sat, l_all, c, c_of, a, b)
-    error = float(math.sqrt(fit_err ** 2 + spread ** 2 + length ** 2 + sat_part ** 2 +
-                            marginal ** 2))
+    shape_error = math.sqrt(fit_err ** 2 + spread ** 2 + length ** 2 + marginal ** 2)
+    error = float(math.sqrt(shape_error ** 2 + sat_part ** 2))
+    # the law is judged on the profile as it is; saturation is weighed after
     law, reason, evidence, flags = decide_law(l, S, sites, boundary, corrections,
-                                              form or "fixed", exponent or 1.0, c, error,
+                                              form or "fixed", exponent or 1.0, c, shape_error,
                                               local_dims, noise)
     if alternation is not None:
         evidence["alternation"] = [{**a_, "aicc": None if math.isinf(a_["aicc"]) else a_["aicc"]}
