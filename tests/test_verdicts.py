@@ -200,3 +200,35 @@ def test_fit_verb_reads_the_checkpoint_boundary(tmp_path, capsys):
     fig = bondscope.entropy_figure(str(path))
     assert fig.bondscope_fits[0]["boundary"] == "periodic"
     assert fig.bondscope_fits[0]["central_charge"] == pytest.approx(res["central_charge"])
+
+
+# --parity-exponent on every verb with fit settings: a number, su2 or auto
+EXPONENT_FLAG = [
+    ("su2", 0, "su2"),          # the SU(2) form by hand
+    ("auto", 0, None),          # chosen by AICc (the default)
+    ("0.5", 0, "fixed"),        # a number fixes K
+    ("banana", 2, None),        # usage error, one line
+    ("-1", 2, None),            # K must be positive
+]
+
+
+@pytest.mark.parametrize("flag, code, form", EXPONENT_FLAG)
+def test_parity_exponent_flag(flag, code, form, tmp_path, capsys):
+    path = tmp_path / "xx.json"
+    path.write_text(json.dumps(_xx_doc(60)))
+    assert main(["fit", str(path), "--json", "--parity-exponent", flag]) == code
+    out, err = capsys.readouterr()
+    if code:
+        assert err.startswith("error: ") and "--parity-exponent" in err and out == ""
+        return
+    res = json.loads(out)
+    assert res["parity_form"] == form or (form is None and res["parity_form"] in
+                                          ("fixed", "fitted", "su2"))
+    from bondscope._cli import build_parser
+    from bondscope._cli.plot import figure_options
+    from bondscope._figures._kinds import figure_function
+
+    args = build_parser().parse_args(["plot", str(path), "-o", str(tmp_path / "f.png"),
+                                      "--parity-exponent", flag])
+    assert figure_options(args, figure_function("entropy"))["fit"] == {
+        "parity_exponent": flag if flag in ("su2", "auto") else float(flag)}

@@ -273,9 +273,11 @@ def _law_text(fit, base):
     boundary = fit.get("boundary", "open")
     terms = [f"(c/{'6' if boundary == 'open' else '3'}) {_log_text(base)} x", "s₀"]
     corrections = fit.get("corrections") or ()
-    if "parity" in corrections:
-        k = fit.get("parity_exponent", 1.0)
-        terms.append("b (−1)ˡ/x" + ("" if k == 1 else f"^{k:g}"))
+    if "parity" in corrections and fit.get("parity_form") == "su2":
+        terms.append("b (−1)ˡ √(ln x)/√x")
+    elif "parity" in corrections:
+        k = fit.get("parity_exponent") or 1.0
+        terms.append("b (−1)ˡ/x" + ("" if k == 1 else f"^{k:.3g}"))
     if "smooth" in corrections:
         terms.append("f/x")
     return (f"fit, {boundary} chain:\nS = " + " + ".join(terms) +
