@@ -80,7 +80,7 @@ def test_budget_verb_switches_to_the_accurate_route(checkpoint, capsys):
     assert len(lines) == 1 and lines[0].startswith("warning: ") and "svd" in lines[0]
     switched = __import__("json").loads(out)
     assert switched["route"] == "svd"
-    assert switched == bond_budget(profiled(str(checkpoint), "svd"), target=1e-14)
+    assert switched == bond_budget(profiled(str(checkpoint), "svd"), target=1e-14).to_dict()
     assert main(["budget", str(checkpoint), "--target", "1e-14", "--route", "gram",
                  "--quiet"]) == 0
     assert capsys.readouterr().err == ""

@@ -1,16 +1,49 @@
 """Bond-dimension budget: the smallest bonds that meet an error target, and their cost."""
 
+import dataclasses
+
 import numpy as np
 
+from .._results import Result
 from .inputs import as_profile
 
-__all__ = ["bond_budget", "ResolutionError", "SPLITS"]
+__all__ = ["SPLITS", "BondBudget", "ResolutionError", "bond_budget"]
 
 SPLITS = ("equal", "pooled")
 # sum of squares above 1 by more than this is not normalised
 _NORM_SLACK = 1e-8
 # rounding of a sum of n squares: n * this (a few float64 eps)
 _ROUNDING = 4 * np.finfo(float).eps
+
+
+@dataclasses.dataclass(frozen=True)
+class BondBudget(Result):
+    """Result of :func:`bond_budget`; fields as its JSON keys (docs/analysis.md)."""
+
+    target: float
+    total: float
+    split: str
+    cuts: list
+    max_bond_dimension: int
+    discarded_weight_sum: float
+    route: str
+    resolution_floor: float
+    dtype: str
+    local_dims: list
+    memory_bytes: int
+    current_memory_bytes: int
+    memory_ratio: float
+    sweep_cost: int
+    current_sweep_cost: int
+    sweep_cost_ratio: float
+
+    _shown = ("max_bond_dimension", "discarded_weight_sum", "target", "total", "route",
+              "resolution_floor", "memory_ratio")
+
+    def _summary(self):
+        goal = f"target {self.target:g}" if self.target is not None else f"total {self.total:g}"
+        return (f"{goal}: max bond dimension {self.max_bond_dimension}, discarded weight "
+                f"<= {self.discarded_weight_sum:.3g}")
 
 
 class ResolutionError(ValueError):
@@ -109,7 +142,7 @@ def bond_budget(source, *, target=None, total=None, split="equal", dtype=None, l
 
     Returns
     -------
-    dict
+    BondBudget
         ``cuts`` (``position``, ``bond_dimension``, ``discarded_weight`` (an
         upper bound: ``resolved_weight``, the stored values dropped, plus
         ``unresolved_bound``), ``current_bond_dimension``,
@@ -204,7 +237,7 @@ def bond_budget(source, *, target=None, total=None, split="equal", dtype=None, l
         "resolution_floor": max((c["resolution_floor"] for c in out_cuts), default=0.0),
     }
     out.update(_costs(prof, cuts, chis, current, dtype, local_dim))
-    return out
+    return BondBudget(**out)
 
 
 def _hint(route):

@@ -1,21 +1,56 @@
 """Comparison of profiles of one system: convergence in bond dimension, or growth in time."""
 
+import dataclasses
 import os
 import re
 from pathlib import Path
 
 import numpy as np
 
+from .._results import ABSENT, Result
 from .._runinfo import run_attributes
 from .extrapolation import Extrapolation, extrapolate, extrapolate_series, run_precision
 from .inputs import as_profile, nats_per_unit
 
-__all__ = ["compare_profiles", "extrapolate", "Extrapolation", "checkpoint_meta", "SERIES"]
+__all__ = ["SERIES", "Comparison", "Extrapolation", "checkpoint_meta", "compare_profiles",
+           "extrapolate"]
 
 SERIES = ("auto", "bond", "time")
 # checkpoint root attributes read as run metadata
 _META_ATTRS = ("time", "max_discarded_weight")
 _NUMBER = re.compile(r"[-+]?\d+(?:\.\d+)?(?:[eE][-+]?\d+)?")
+
+
+@dataclasses.dataclass(frozen=True)
+class Comparison(Result):
+    """Result of :func:`compare_profiles`; fields as its JSON keys (docs/analysis.md).
+    Bond series have no time fields, time series no extrapolation."""
+
+    series: str
+    runs: list
+    sites: int
+    positions: list
+    entropies: list
+    units: str
+    differences: list
+    largest_difference: dict
+    last_difference: float
+    tol: float
+    converged: bool
+    verdict: str
+    extrapolation: object = ABSENT
+    extrapolation_note: str = ABSENT
+    times: list = ABSENT
+    time_source: str = ABSENT
+    middle_position: int = ABSENT
+    middle_growth_rate: float = ABSENT
+    middle_growth_rates: list = ABSENT
+
+    _shown = ("series", "verdict", "last_difference", "tol", "runs")
+
+    def _summary(self):
+        return (f"{self.series} series of {len(self.runs)} runs: {self.verdict} (last change "
+                f"{self.last_difference:.3g} nats)")
 
 
 def _name(source, prof, i):
@@ -114,7 +149,7 @@ def compare_profiles(sources, *, tol=1e-3, series="auto", names=None, meta=None,
 
     Returns
     -------
-    dict
+    Comparison
         ``series``, ``runs`` (names in order), ``positions`` (the common
         cuts), ``entropies`` (runs x cuts, nats), ``differences`` (per step
         between consecutive runs, per cut), ``largest_difference`` (value,
@@ -231,14 +266,14 @@ def compare_profiles(sources, *, tol=1e-3, series="auto", names=None, meta=None,
             "middle_growth_rates": ([float(v) for v in np.diff(s_mid) / dt]
                                     if (dt > 0).all() else None),
         })
-        return out
+        return Comparison(**out)
     out["verdict"] = "converged" if converged else "not converged"
     W, wsources = _weights(profs, metas, positions)
     if W is None:
         out["extrapolation"] = None
         out["extrapolation_note"] = "no discarded weight for every run"
-        return out
+        return Comparison(**out)
     precision = np.array([run_precision(p, positions) for p in profs])
     ext = extrapolate_series(W, S, names, precision, form=form, runs=runs)
     out["extrapolation"] = {**ext, "weights": W.tolist(), "weight_sources": wsources}
-    return out
+    return Comparison(**out)

@@ -1,16 +1,37 @@
 """Spectrum diagnostics: entanglement gap and degeneracy pattern at every cut."""
 
+import dataclasses
 import math
 
 import numpy as np
 
+from .._results import Result
 from .inputs import as_profile
 
-__all__ = ["spectrum_diagnostics", "DEFAULT_ACCURACY"]
+__all__ = ["DEFAULT_ACCURACY", "SpectrumDiagnostics", "spectrum_diagnostics"]
 
 # lambda^2 of iterative eigensolvers and truncated sweeps are rarely better than this
 # (common practice: Lanczos tolerances ~1e-10 on the state)
 DEFAULT_ACCURACY = 1e-10
+
+
+@dataclasses.dataclass(frozen=True)
+class SpectrumDiagnostics(Result):
+    """Result of :func:`spectrum_diagnostics`; fields as its JSON keys."""
+
+    cuts: list
+    even_cuts: list
+    all_even: bool
+    tol: float
+    levels: int
+    weight_floor: float
+    accuracy: float
+
+    _shown = ("all_even", "tol", "accuracy", "weight_floor")
+
+    def _summary(self):
+        return (f"evenly degenerate at {len(self.even_cuts)} of {len(self.cuts)} cuts "
+                f"(tol {self.tol:g}, accuracy {self.accuracy:.2g})")
 
 
 def _groups(energies, tol, slack):
@@ -91,7 +112,7 @@ def spectrum_diagnostics(source, *, levels=4, tol=1e-6, weight_floor=None, accur
 
     Returns
     -------
-    dict
+    SpectrumDiagnostics
         ``cuts``: per cut ``position``, ``entanglement_gap`` (eps_1 - eps_0,
         None for a rank-1 cut), ``levels`` and ``degeneracies`` (the lowest
         `levels` distinct levels and their multiplicities),
@@ -140,6 +161,7 @@ def spectrum_diagnostics(source, *, levels=4, tol=1e-6, weight_floor=None, accur
     cuts = [_cut_diagnostics(c, int(levels), float(tol), float(weight_floor), accuracy)
             for c in prof.cuts]
     even = [c["position"] for c in cuts if c["even_degeneracy"]]
-    return {"cuts": cuts, "even_cuts": even, "all_even": bool(cuts) and len(even) == len(cuts),
-            "tol": float(tol), "levels": int(levels), "weight_floor": float(weight_floor),
-            "accuracy": accuracy}
+    return SpectrumDiagnostics(cuts=cuts, even_cuts=even,
+                               all_even=bool(cuts) and len(even) == len(cuts), tol=float(tol),
+                               levels=int(levels), weight_floor=float(weight_floor),
+                               accuracy=accuracy)

@@ -5,7 +5,7 @@ import math
 
 import numpy as np
 
-from .._results import Result
+from .._results import ABSENT, Result
 from .diagnostics import spectrum_diagnostics
 from .inputs import as_profile, nats_per_unit
 from .models import choose_alternation, fit_model
@@ -186,20 +186,10 @@ class ScalingFit(Result):
     law_evidence: dict
     flags: list
     saturation: dict
-    diagnostics: object = None
+    diagnostics: object = ABSENT
 
     _shown = ("law", "central_charge", "central_charge_error", "boundary", "window",
               "parity_form", "law_reason")
-
-    def to_dict(self):
-        out = super().to_dict()
-        if self.diagnostics is None:
-            del out["diagnostics"]
-        return out
-
-    def __contains__(self, key):
-        return key != "diagnostics" or self.diagnostics is not None if key in self.keys() \
-            else False
 
     def _summary(self):
         if self.law == "logarithmic":
@@ -376,10 +366,8 @@ def fit_scaling(source, *, boundary=None, window=None, corrections=None, parity_
         elif sat_part > SATURATED_C or sat["severe"]:
             flags.append(f"{where}: a {law} law, or a critical profile saturated by the bond "
                          "dimension; a run at larger bond dimension tells")
-    if spectrum_report:
-        diagnostics = spectrum_diagnostics(prof, tol=degeneracy_tol)
-    else:
-        diagnostics = None
+    diagnostics = (spectrum_diagnostics(prof, tol=degeneracy_tol) if spectrum_report
+                   else ABSENT)
     return ScalingFit(
         boundary=boundary, boundary_source=boundary_source, sites=sites, window=[a, b],
         corrections=list(corrections), parity_exponent=exponent, parity_form=form,
