@@ -5,6 +5,7 @@ import warnings
 from contextlib import contextmanager
 
 from .._errors import one_line
+from .._text import visible
 
 __all__ = ["quiet_warnings", "warn_lines"]
 
@@ -13,7 +14,7 @@ __all__ = ["quiet_warnings", "warn_lines"]
 def quiet_warnings(quiet=False):
     """Inside: every Python warning is one ``warning:`` line on stderr, or none when quiet."""
     def show(message, category, filename, lineno, file=None, line=None):
-        print(f"warning: {one_line(message)}", file=sys.stderr)
+        print(f"warning: {visible(one_line(message))}", file=sys.stderr)
 
     with warnings.catch_warnings():
         if quiet:
