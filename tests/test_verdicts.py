@@ -133,6 +133,35 @@ def test_finite_chi_profiles(L, chi, boundary, expected):
         assert res.law == expected
 
 
+# the same profiles saved without spectra: the bias is unknown, the middle half's curvature
+# stands in for it
+NO_SPECTRA = [
+    (100, 8, "open", "possibly saturated"),
+    (100, 16, "open", None),
+    (100, 64, "open", "logarithmic"),
+    (102, 32, "periodic", "possibly saturated"),
+    (102, 64, "periodic", None),
+    (102, 128, "periodic", "logarithmic"),
+]
+
+
+@pytest.mark.parametrize("L, chi, boundary, expected", NO_SPECTRA)
+def test_finite_chi_profiles_without_spectra(L, chi, boundary, expected):
+    doc = truncated_xx(L, chi, boundary)
+    for cut in doc["cuts"]:
+        del cut["schmidt_values"]
+    res = fit_scaling(doc)
+    assert res.flags    # the unknown bias is always said
+    if res.law == "logarithmic":
+        assert abs(res.central_charge - 1.0) <= 2 * res.central_charge_error
+    else:
+        assert res.law == "inconclusive"
+    if expected == "logarithmic":
+        assert res.law == expected
+    elif expected is not None:
+        assert res.law_reason.startswith(expected)
+
+
 def _xx_doc(L, chain="open", **top):
     S = freefermion.xx_entropies(L, chain)
     return {"format": "bondscope-profile", "version": 1, "sites": L, "log_base": "e",

@@ -341,6 +341,11 @@ def fit_scaling(source, *, boundary=None, window=None, corrections=None, parity_
                                        0.5).coef[0]) - c)
     sat = finite_chi(prof, l)
     sat_part, sat_unknown = _saturation_part(sat, l_all, c, c_of, a, b)
+    if sat_unknown:
+        # bias unknown: the curvature a saturated middle puts on S against ln x, read as
+        # the change of c on the window's middle half
+        sat_part = max(sat_part, _middle_drift(l_all, S_all, a, b, sites, boundary, corrections,
+                                               form, exponent, alternation, noise, c))
     shape_error = math.sqrt(fit_err ** 2 + spread ** 2 + length ** 2 + marginal ** 2)
     error = float(math.sqrt(shape_error ** 2 + sat_part ** 2))
     # the law is judged on the profile as it is; saturation is weighed after
@@ -353,9 +358,16 @@ def fit_scaling(source, *, boundary=None, window=None, corrections=None, parity_
     if sat["capped"]:
         chi = sat["bond_dimension"]
         where = f"{len(sat['capped'])} of {len(l)} fitted cuts at the run's bond dimension {chi}"
-        if sat_unknown:
+        if sat_unknown and sat_part > SATURATED_C and law in ("logarithmic", "inconclusive"):
+            law, reason = "inconclusive", (f"possibly saturated: {where}, their truncation "
+                                           f"bias unknown, and c on the window's middle half "
+                                           f"differs by {sat_part:.2g}; profile with "
+                                           "--spectrum or use a larger bond dimension")
+            flags.append(reason)
+        elif sat_unknown:
             flags.append(f"{where}; their truncation bias is unknown without spectra or a "
-                         "discarded weight (profile with --spectrum)")
+                         "discarded weight (profile with --spectrum); the curvature of the "
+                         f"middle half ({sat_part:.2g} in c) is in the error")
         elif (sat_part > SATURATED_C or sat["severe"]) and law in ("logarithmic",
                                                                    "inconclusive"):
             moved = (f"move c by {sat_part:.2g}" if not sat["severe"] else
@@ -381,6 +393,23 @@ def fit_scaling(source, *, boundary=None, window=None, corrections=None, parity_
         rms_residual=float(np.sqrt(np.mean(best.resid ** 2))), law=law, law_reason=reason,
         law_evidence=evidence, flags=flags, saturation={**sat, "c_shift": sat_part},
         diagnostics=diagnostics)
+
+
+def _middle_drift(l_all, S_all, a, b, sites, boundary, corrections, form, exponent,
+                  alternation, noise, c):
+    """|c on the window's middle half - c|, the alternation chosen afresh when it was chosen
+    from the data (0 when the middle half is too short)."""
+    q = (b - a) // 4
+    pick = (l_all >= a + q) & (l_all <= b - q)
+    n_par = 2 + len(corrections)
+    if not q or pick.sum() < n_par + 1:
+        return 0.0
+    l, S = l_all[pick], S_all[pick]
+    if alternation is not None and pick.sum() >= n_par + 4:
+        form, exponent, _ = choose_alternation(l, S, sites, boundary, corrections, noise)
+    fit = fit_model(l, S, sites, boundary, "logarithmic", corrections, form or "fixed",
+                    exponent or 1.0)
+    return abs(float(fit.coef[0]) - c)
 
 
 def _saturation_part(sat, l_all, c, c_of, a, b):
