@@ -9,6 +9,8 @@ __all__ = ["finite_chi", "entropy_bias", "TAIL_FACTOR"]
 # the weight a capped cut drops, as a multiple of its smallest kept lambda^2 (our choice:
 # at least twice the true tail on truncated XX spectra, L = 100, chi = 4..64)
 TAIL_FACTOR = 20.0
+# cuts at the largest bond dimension that make it a cap when no bond_dim is recorded
+PLATEAU = 3
 # a dropped weight this large leaves the entropy unbounded by the estimate
 SEVERE = 0.5
 
@@ -34,7 +36,10 @@ def _run_bond(prof):
     if prof.kind != "mps":
         return None, None
     ranks = [c.get("bond_dimension") for c in prof.cuts if c.get("bond_dimension")]
-    return (max(ranks), "largest stored bond dimension") if ranks else (None, None)
+    # a cap shows as a plateau; an exact chain's largest bond sits at one or two middle cuts
+    if not ranks or ranks.count(max(ranks)) < PLATEAU:
+        return None, None
+    return max(ranks), "largest stored bond dimension"
 
 
 def _run_weight(prof):
@@ -58,7 +63,7 @@ def finite_chi(prof, positions):
 
     A cut is *capped* when its bond dimension (else Schmidt rank) equals the
     run's bond dimension chi (the document's ``bond_dim``, else for an MPS
-    its largest stored bond dimension) while the cut could hold more
+    its largest stored bond dimension when at least ``PLATEAU`` cuts share it) while the cut could hold more
     (``local_dims`` known: chi below the smaller side's dimension).  The
     weight it dropped is the run's discarded weight when the document
     records one, else ``TAIL_FACTOR`` times its smallest stored lambda^2
