@@ -4,6 +4,7 @@ chains, quench snapshots, truncated exact profiles; "inconclusive" where the dat
 
 import functools
 import json
+from pathlib import Path
 
 import h5py
 import numpy as np
@@ -261,3 +262,19 @@ def test_parity_exponent_flag(flag, code, form, tmp_path, capsys):
                                       "--parity-exponent", flag])
     assert figure_options(args, figure_function("entropy"))["fit"] == {
         "parity_exponent": flag if flag in ("su2", "auto") else float(flag)}
+
+
+@pytest.mark.parametrize("chi, law", [
+    (8, "inconclusive"),     # c = 0.47 from a saturated middle: said, not reported
+    (32, "logarithmic"),     # converged: c = 1/2 within its error
+])
+def test_bundled_dmrg_series_at_finite_chi(chi, law):
+    # critical Ising chain, L = 64, two-site DMRG runs (data/series); c = 1/2 (Calabrese &
+    # Cardy, J. Stat. Mech. P06002 (2004))
+    path = Path(__file__).resolve().parent.parent / "data" / "series" / f"kp0417_chi{chi}.h5"
+    res = fit_scaling(bondscope.profile(path, spectrum=True), boundary="open")
+    assert res.law == law
+    if law == "logarithmic":
+        assert abs(res.central_charge - 0.5) <= 2 * res.central_charge_error
+    else:
+        assert res.law_reason.startswith("saturated")
