@@ -27,6 +27,7 @@ spectrum_figure    -- entanglement spectrum levels -ln lambda^2 at every cut
 budget_figure      -- bond dimension needed per cut for target errors
 heatmap_figure     -- S(l, t) over a time series of checkpoints
 convergence_figure -- middle-cut entropy against discarded weight or 1/chi, extrapolated
+mixed_figure       -- mixed states: physical S_2 and I_2 beside the stored form's cut entropy
 write_report       -- one self-contained HTML page for a batch results directory
 
 Analyses
@@ -73,6 +74,7 @@ _LAZY = {
     "budget_figure": "bondscope._figures.budget",
     "heatmap_figure": "bondscope._figures.heatmap",
     "convergence_figure": "bondscope._figures.convergence",
+    "mixed_figure": "bondscope._figures.mixed",
     "write_report": "bondscope._report",
     "fit_scaling": "bondscope._analyses.scaling",
     "bond_budget": "bondscope._analyses.budget",

@@ -178,6 +178,13 @@ def _chain_candidate(f, pattern, hits, axes):
     if problem is None:
         try:
             shapes = [f[p].shape for p in cand.datasets]
+            from ._mixed import is_mixed_family, kind_of, mixed_axes, stored_hint
+
+            if is_mixed_family(shapes):
+                cand.axes = mixed_axes(shapes, numbers, axes, stored_hint(f[cand.datasets[0]]),
+                                       where=f"{f.filename}: {pattern}")
+                cand.kind = kind_of(cand.axes)
+                return cand
             cand.axes = resolve_axes(shapes, numbers, axes, where=f"{f.filename}: {pattern}")
         except CheckpointError as exc:
             cand.problem = str(exc)
@@ -208,7 +215,7 @@ def scan(f, local_dim=None, axes=None, complex_parts="auto"):
     patterns, oversized = {}, {}
     for p in paths:
         shape = f[p].shape
-        if len(shape) not in (2, 3) or _column(shape):
+        if len(shape) not in (2, 3, 4) or _column(shape):
             continue
         for m in _NUMBER.finditer(p):
             pat = p[:m.start()] + "{site}" + p[m.end():]
@@ -289,6 +296,9 @@ def open_source(path, *, state=None, tensors=None, local_dim=None, axes=None,
     axes : str or tuple, optional
         Stored axis order of the site tensors, a permutation of left,phys,right.
         Inferred from how the bonds chain when omitted; honoured by detection.
+        Rank-4 tensors: a permutation of left,ket,bra,right (density matrix) or
+        left,phys,ancilla,right (purification), or found from stored
+        attributes (:mod:`bondscope._mixed`).
     complex_parts : {"auto", "last-axis", "none"}
         Real and imaginary parts of a state vector in a last axis of length 2:
         found from the shape (a real (D, 2) array with D > 16), forced, or never
@@ -298,7 +308,7 @@ def open_source(path, *, state=None, tensors=None, local_dim=None, axes=None,
 
     Returns
     -------
-    ChainSource or AmplitudeSource
+    ChainSource, MixedSource or AmplitudeSource
         Holds the file open; call ``close()`` (or use it as a context manager).
         ``read_buffer`` is the most memory HDF5 and the (re, im) combination
         need besides one returned array (see :mod:`bondscope._readcost`).
@@ -410,8 +420,11 @@ def _chain_source(f, path, cand, precision):
     dtypes = [_stored_dtype(d, f"{path}:{d.name}") for d in dsets]
     dtype = np.result_type(*dtypes)
     readers = [_reader(d, t) for d, t in zip(dsets, dtypes)]
-    src = ChainSource([d.shape for d in dsets], dtype, lambda i: readers[i](), cand.labels,
-                      cand.axes, f"{path}:{cand.spec}", precision)
+    kind = ChainSource
+    if len(cand.axes) == 4:
+        from ._mixed import MixedSource as kind
+    src = kind([d.shape for d in dsets], dtype, lambda i: readers[i](), cand.labels,
+               cand.axes, f"{path}:{cand.spec}", precision)
     src.read_buffer = max(read_buffer_bytes(d) + (d.size * t.itemsize // 2 if d.dtype.names
                                                   else 0) for d, t in zip(dsets, dtypes))
     return src

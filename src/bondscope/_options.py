@@ -21,7 +21,7 @@ LAYOUT = ("state", "tensors", "local_dim", "axes", "complex_parts")
 # block-sparse checkpoints (bondscope._blocksparse)
 BLOCK_LAYOUT = ("blocks", "block_form", "charge_flow")
 MEASURES = ("renyi", "base", "spectrum", "bond_dim", "weight_tol", "route", "precision",
-            "charges", "modulus")
+            "charges", "modulus", "disentangle")
 # how a profile is computed, not what it holds (left out of a batch result's record)
 RESOURCES = ("scratch", "max_memory", "threads")
 # root attribute names of the run metadata (bondscope._runinfo); read afresh, not recorded
@@ -125,6 +125,9 @@ class ProfileOptions:
     time_attr, bond_dim_attr, weight_attr : str, optional
         Root attributes holding the run's time, bond dimension and discarded
         weight (default ``time``, ``bond_dim``, ``max_discarded_weight``).
+    disentangle : bool
+        Purifications: also the cut entropy after optimising ancilla unitaries
+        beside each cut (docs/mixed.md).
 
     Raises
     ------
@@ -165,6 +168,7 @@ class ProfileOptions:
     time_attr: str = None
     bond_dim_attr: str = None
     weight_attr: str = None
+    disentangle: bool = False
 
     def __post_init__(self):
         from ._measure import renyi_orders
@@ -212,6 +216,9 @@ class ProfileOptions:
         if self.threads is not None:
             put("threads", _integer(self.threads, "threads", 1))
         self._check_charges(put)
+        if not isinstance(self.disentangle, bool):
+            raise ValueError(f"{option_label('disentangle')} must be True or False, found "
+                             f"{self.disentangle!r}")
 
     def _check_charges(self, put):
         from ._blocksparse import FORMS

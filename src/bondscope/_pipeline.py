@@ -93,6 +93,12 @@ def _charge_kernel(src, opts, tick):
     return result, src.bond_dims if src.kind == "mps" else None
 
 
+def _mixed_kernel(src, opts, tick):
+    from ._kernels.mixedprofile import mixed_spectra
+
+    return mixed_spectra(src, opts, tick), src.bond_dims
+
+
 def _bound_charges(src, opts):
     if hasattr(src, "blocks"):
         return src.charges
@@ -107,6 +113,8 @@ def _bound_charges(src, opts):
 KERNELS = {
     "mps": (_chain_kernel, lambda src: 2 * src.sites - 1),
     "state-vector": (_amplitude_kernel, lambda src: src.sites - 1),
+    "density-matrix": (_mixed_kernel, lambda src: 4 * src.sites - 2),
+    "purified": (_mixed_kernel, lambda src: 5 * src.sites - 3),
 }
 # with local charges (or a block-sparse source): charge-resolved spectra
 CHARGE_KERNELS = {
@@ -132,7 +140,9 @@ def profile(source, options=None, *, progress=False, **kwargs):
     source : str, Path, ndarray or list of ndarray
         An HDF5 checkpoint; a state vector (1-D of length prod(d_i), or shaped
         (d_1, ..., d_N)); or site tensors shaped (left, phys, right) (or in the
-        order ``axes``), with bonds of 1 (or rank 2) at the ends.
+        order ``axes``), with bonds of 1 (or rank 2) at the ends; or rank-4 site
+        tensors of a mixed state with ``axes`` left,ket,bra,right (a density
+        matrix) or left,phys,ancilla,right (a purification), see docs/mixed.md.
     options : ProfileOptions, optional
         Layout, measures and resources; keywords override its fields.
     progress : bool
@@ -141,7 +151,7 @@ def profile(source, options=None, *, progress=False, **kwargs):
         Any field of :class:`~bondscope.ProfileOptions`: ``state``, ``tensors``,
         ``local_dim``, ``axes``, ``renyi``, ``base``, ``spectrum``, ``bond_dim``,
         ``weight_tol``, ``route``, ``precision``, ``scratch``, ``max_memory``,
-        ``threads``.
+        ``threads``, ``charges``, ``disentangle`` (purifications).
 
     Returns
     -------
@@ -151,7 +161,8 @@ def profile(source, options=None, *, progress=False, **kwargs):
     ------
     CheckpointError
         The checkpoint or arrays are not a valid state (see :func:`open_source`),
-        NaN/Inf values, zero norm.
+        NaN/Inf values, zero norm; a rank-4 family that is not a density matrix
+        (not Hermitian, trace zero or negative) or a purification of zero norm.
     MemoryLimitError
         The pre-flight estimate exceeds the memory limit; nothing is read.
     TypeError
@@ -182,12 +193,21 @@ def profile(source, options=None, *, progress=False, **kwargs):
     >>> p = bondscope.profile(bell, base=2)
     >>> p.entropies.round(12).tolist(), p.schmidt_ranks.tolist()
     ([1.0], [2])
+
+    A density matrix as an MPO: two qubits at infinite temperature.
+
+    >>> rho = [np.eye(2).reshape(1, 2, 2, 1) / 2] * 2
+    >>> m = bondscope.profile(rho, axes="left,ket,bra,right", base=2)
+    >>> m["purity"], m.column("renyi2_left").round(12).tolist()
+    (0.25, [1.0])
     """
     opts = ProfileOptions.from_kwargs(options, **kwargs)
     with open_any(source, opts) as src:
         route = _route(src, opts)
         charged = opts.charges is not None or hasattr(src, "blocks")
-        check_memory(estimate(src, route, opts.truncating, charged), opts.max_memory)
+        _check_kind(src, opts, charged)
+        check_memory(estimate(src, route, opts.truncating, charged, opts.disentangle),
+                     opts.max_memory)
         kernel, steps = (CHARGE_KERNELS if charged else KERNELS)[src.kind]
         if route is not None:
             opts = opts.replace(route=route)
@@ -217,6 +237,18 @@ def _warn_sensitive(doc):
                           f"resolution floor at {len(cuts)} of {len(doc['cuts'])} cuts "
                           "(values under the floor could move it; see floor_errors)",
                           ResolutionWarning, stacklevel=3)
+
+
+def _check_kind(src, opts, charged):
+    """Options that do not apply to this kind of source (ValueError)."""
+    from ._options import option_label
+
+    if opts.disentangle and src.kind != "purified":
+        raise ValueError(f"{option_label('disentangle')} applies to purifications (axes "
+                         f"left,phys,ancilla,right); {src.name} is a {src.kind}")
+    if charged and src.kind not in CHARGE_KERNELS:
+        raise ValueError(f"{option_label('charges')} is not available for a {src.kind} "
+                         f"({src.name}); profile without charges")
 
 
 def _warn_norm(src, norm):
@@ -262,6 +294,10 @@ def _document(src, opts, result, bonds):
 
         doc["charges"] = sector_document(result, _bound_charges(src, opts), opts, cuts)
     doc["floor_errors"] = floor_errors(bounds, opts.renyi)
+    if hasattr(result, "renyi2"):
+        from ._kernels.mixedprofile import mixed_document
+
+        mixed_document(doc, cuts, result, src, opts)
     doc["cuts"] = cuts
     return doc
 
@@ -301,14 +337,14 @@ def inspect(source, options=None, **kwargs):
         if isinstance(source, (str, os.PathLike)):
             info["file_bytes"] = Path(source).stat().st_size
         route = _route(src, opts)
-        if src.kind == "mps":
+        if src.kind != "state-vector":
             info["bond_dims"] = src.bond_dims
             info["max_bond_dim"] = max(src.bond_dims)
             info["axes"] = ",".join(src.axes)
             info["site_labels"] = [src.labels[0], src.labels[-1]]
         if route is not None:
             info["route"] = route
-        info["estimate"] = estimate(src, route, opts.truncating,
-                                    opts.charges is not None).to_dict()
+        info["estimate"] = estimate(src, route, opts.truncating, opts.charges is not None,
+                                    opts.disentangle).to_dict()
         info["available_memory"] = available_memory()
     return info

@@ -78,7 +78,8 @@ FLAGS = {
         help="local dimension for a 1-D state vector: one integer or a comma list per site "
              "(default 2)")),
     "axes": ("layout", ("--axes",), dict(
-        metavar="ORDER", help="axis order of the site tensors, a permutation of left,phys,right")),
+        metavar="ORDER", help="axis order of the site tensors, a permutation of left,phys,right; "
+                             "mixed states: left,ket,bra,right or left,phys,ancilla,right")),
     "complex_parts": ("layout", ("--complex-parts",), dict(
         metavar="HOW", default="auto",
         help="state vector stored as real numbers with (re, im) in a last axis of length 2: "
@@ -122,6 +123,10 @@ FLAGS = {
     "precision": ("measures", ("--precision",), dict(
         default="promote", help="single-precision checkpoints: compute in double (promote, "
                                 "default) or as stored (half the memory, floors at float32 eps)")),
+    # mixed states
+    "disentangle": ("measures", ("--disentangle",), dict(
+        action="store_true", help="purifications: also the cut entropy after optimising "
+                                  "ancilla unitaries beside each cut (docs/mixed.md)")),
     # resources
     "max_memory": ("resources", ("--max-memory",), dict(
         metavar="SIZE", type=parse_size,
@@ -162,7 +167,7 @@ FLAGS = {
 LAYOUT_FLAGS = ("state", "tensors", "local_dim", "axes", "complex_parts", "blocks", "block_form",
                 "charge_flow")
 MEASURE_FLAGS = ("renyi", "base", "spectrum", "bond_dim", "weight_tol", "route", "precision",
-                 "charges", "modulus")
+                 "charges", "modulus", "disentangle")
 RESOURCE_FLAGS = ("max_memory", "scratch", "threads", "quiet")
 FIT_FLAGS = ("boundary", "window", "corrections", "parity_exponent")
 RUN_FLAGS = ("time_attr", "bond_dim_attr", "weight_attr")
