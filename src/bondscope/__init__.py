@@ -43,6 +43,7 @@ Errors
 CheckpointError  -- a checkpoint or profile that cannot be read as it stands
 MemoryLimitError -- work refused by the pre-flight memory estimate
 UnnormalisedStateWarning -- the stored state was not normalised (it is profiled normalised)
+ResolutionWarning -- Schmidt values resolved far worse than the precision (ill-conditioned gauge)
 
 Heavy dependencies (scipy, matplotlib, dask) are imported only when a
 function that needs them runs.
@@ -63,6 +64,7 @@ _LAZY = {
     "load_profile": "bondscope._document",
     "entropy_measures": "bondscope._measure",
     "UnnormalisedStateWarning": "bondscope._pipeline",
+    "ResolutionWarning": "bondscope._measure",
     "run_batch": "bondscope._batch.run",
     "plot": "bondscope._figures._kinds",
     "entropy_figure": "bondscope._figures.entropy",

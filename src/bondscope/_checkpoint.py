@@ -6,7 +6,8 @@ from pathlib import Path
 
 import numpy as np
 
-from ._errors import CheckpointError
+from ._errors import CheckpointError, one_line
+from ._linked import refuse_missing_sources
 from ._readcost import read_buffer_bytes
 from ._source import AmplitudeSource, ChainSource, numeric_dtype, resolve_axes, split_local_dims
 from ._vectorshape import pairs_as_complex, power_hint, vector_shape
@@ -56,7 +57,7 @@ def _open(path):
     try:
         return h5py.File(path, "r")
     except OSError as exc:
-        reason = " ".join(str(exc).split())
+        reason = one_line(exc)
         hint = " - the file looks truncated (an interrupted copy or write?)" \
             if "truncated" in reason or "eof" in reason.lower() else ""
         raise CheckpointError(f"{path}: not a readable HDF5 file ({reason}){hint}") from None
@@ -123,14 +124,14 @@ def _datasets(f):
     try:
         f.visititems(visit)
     except (OSError, RuntimeError, KeyError) as exc:
-        raise unreadable_structure(f, exc) from None
+        raise unreadable_structure(f.filename, exc) from None
     return found
 
 
-def unreadable_structure(f, exc):
+def unreadable_structure(path, exc):
     """CheckpointError for groups or links HDF5 could not walk (a file rewritten while read)."""
-    return CheckpointError(f"{f.filename}: the file's groups could not be read "
-                           f"({' '.join(str(exc).split())}); if another program is writing it, "
+    return CheckpointError(f"{path}: the file's groups could not be read "
+                           f"({one_line(exc)}); if another program is writing it, "
                            "retry when it has finished, otherwise the file is damaged")
 
 
@@ -335,10 +336,11 @@ def open_source(path, *, state=None, tensors=None, local_dim=None, axes=None,
                    complex_parts=complex_parts, precision=precision)
     f = _open(path)
     try:
+        refuse_missing_sources(f, path)
         src = _pick(f, Path(path), state, tensors, local_dim, axes, complex_parts, precision)
     except (OSError, RuntimeError, KeyError) as exc:      # h5py's errors for a changing file
         f.close()
-        raise unreadable_structure(f, exc) from None
+        raise unreadable_structure(path, exc) from None
     except BaseException:
         f.close()
         raise

@@ -1,12 +1,14 @@
 """Error types raised at bondscope's public boundary."""
 
 __all__ = ["CheckpointError", "MemoryLimitError", "EXIT_USAGE", "EXIT_CHECKPOINT", "EXIT_MEMORY",
-           "EXIT_FAILED", "one_line"]
+           "EXIT_FAILED", "EXIT_SOME_FAILED", "one_line"]
 
 EXIT_USAGE = 2
 EXIT_CHECKPOINT = 3
 EXIT_MEMORY = 4
 EXIT_FAILED = 1
+# batch: it ran, and some checkpoints failed (their count is in the summary)
+EXIT_SOME_FAILED = 5
 
 
 class CheckpointError(ValueError):

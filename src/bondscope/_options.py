@@ -14,7 +14,7 @@ import math
 import os
 from numbers import Integral, Real
 
-__all__ = ["ProfileOptions", "LAYOUT", "BLOCK_LAYOUT", "MEASURES", "RESOURCES",
+__all__ = ["ProfileOptions", "LAYOUT", "BLOCK_LAYOUT", "MEASURES", "RESOURCES", "RUN_META",
            "option_label"]
 
 LAYOUT = ("state", "tensors", "local_dim", "axes", "complex_parts")
@@ -24,6 +24,8 @@ MEASURES = ("renyi", "base", "spectrum", "bond_dim", "weight_tol", "route", "pre
             "charges", "modulus", "disentangle")
 # how a profile is computed, not what it holds (left out of a batch result's record)
 RESOURCES = ("scratch", "max_memory", "threads")
+# root attribute names of the run metadata (bondscope._runinfo); read afresh, not recorded
+RUN_META = ("time_attr", "bond_dim_attr", "weight_attr")
 ROUTES = ("auto", "gram", "svd")
 PRECISIONS = ("promote", "stored")
 
@@ -123,6 +125,9 @@ class ProfileOptions:
     disentangle : bool
         Purifications: also the cut entropy after optimising ancilla unitaries
         beside each cut (docs/mixed.md).
+    time_attr, bond_dim_attr, weight_attr : str, optional
+        Root attributes holding the run's time, bond dimension and discarded
+        weight (default ``time``, ``bond_dim``, ``max_discarded_weight``).
 
     Raises
     ------
@@ -161,15 +166,19 @@ class ProfileOptions:
     block_form: str = None
     charge_flow: str = "rightward"
     disentangle: bool = False
+    time_attr: str = None
+    bond_dim_attr: str = None
+    weight_attr: str = None
 
     def __post_init__(self):
         from ._measure import renyi_orders
 
         put = lambda name, value: object.__setattr__(self, name, value)  # noqa: E731
-        for name in ("state", "tensors"):
+        for name in ("state", "tensors", *RUN_META):
             value = getattr(self, name)
             if value is not None and not isinstance(value, str):
-                raise TypeError(f"{option_label(name)} must be a dataset path (str), found "
+                what = "an attribute name" if name in RUN_META else "a dataset path"
+                raise TypeError(f"{option_label(name)} must be {what} (str), found "
                                 f"{type(value).__name__}")
         if self.state is not None and self.tensors is not None:
             raise ValueError("give either a state dataset (state=, --state) or a tensor "
@@ -283,5 +292,6 @@ class ProfileOptions:
         return out
 
     def recorded(self):
-        """The options that decide a profile's content (resources left out), as JSON values."""
-        return {k: v for k, v in self.to_dict().items() if k not in RESOURCES}
+        """The options that decide a profile's content (resources and run-metadata names
+        left out), as JSON values."""
+        return {k: v for k, v in self.to_dict().items() if k not in (*RESOURCES, *RUN_META)}

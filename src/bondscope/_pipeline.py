@@ -11,15 +11,17 @@ import numpy as np
 from ._document import FORMAT, VERSION, Profile
 from ._estimate import check_memory, estimate
 from ._exponent import norm_text, stored_norm
-from ._measure import discarded_weight, kept_rank, spectrum_measures
+from ._measure import discarded_weight, floor_errors, kept_rank, spectrum_measures
 from ._options import ProfileOptions
 
 __all__ = ["profile", "inspect", "open_any", "UnnormalisedStateWarning"]
 
-# Relative deviation of the norm from 1 above which the user is told, and its
-# floor in units of the stored precision's eps (a float32 state is normalised to ~1e-7).
-_NORM_TOLERANCE = 1e-8
-_NORM_EPS_UNITS = 100
+# Relative deviation of the norm from 1 above which the user is told: the worst-case
+# rounding of 10^4 single-precision updates, n eps (Higham, Accuracy and Stability of
+# Numerical Algorithms, 2nd ed., sec. 3.1), about 1.2e-3; a time evolution that never
+# renormalises drifts by less (1.00005 is ordinary), a state never normalised far more.
+# The norm itself is always recorded (the document's ``norm``).
+NORM_TOLERANCE = 1e4 * float(np.finfo(np.float32).eps)
 
 
 class UnnormalisedStateWarning(UserWarning):
@@ -171,7 +173,12 @@ def profile(source, options=None, *, progress=False, **kwargs):
     Warns
     -----
     UnnormalisedStateWarning
-        The state's norm differs from 1; the normalised state is profiled.
+        The norm differs from 1 by more than 1.2e-3 (accumulated single-precision
+        rounding, see ``NORM_TOLERANCE``); the normalised state is profiled.
+    ResolutionWarning
+        An ill-conditioned stored gauge leaves the values resolved only above
+        sqrt(eps), or a Rényi order is too sensitive to the floor to be reported
+        at some cuts (the document's ``floor_errors``).
 
     Notes
     -----
@@ -217,6 +224,7 @@ def profile(source, options=None, *, progress=False, **kwargs):
         doc["norm"] = norm[0]
         if norm[1]:
             doc["norm_exponent"] = norm[1]
+    _warn_sensitive(doc)
     return Profile(doc)
 
 
@@ -232,9 +240,19 @@ def _check_kind(src, opts, charged):
                          f"({src.name}); profile without charges")
 
 
+def _warn_sensitive(doc):
+    from ._measure import ResolutionWarning
+
+    for order, cuts in doc["floor_errors"]["floor_sensitive"].items():
+        if cuts:
+            warnings.warn(f"{doc['source']}: Renyi order {order} is too sensitive to the "
+                          f"resolution floor at {len(cuts)} of {len(doc['cuts'])} cuts "
+                          "(values under the floor could move it; see floor_errors)",
+                          ResolutionWarning, stacklevel=3)
+
+
 def _warn_norm(src, norm):
-    stored_eps = float(np.finfo(src.dtype if src.dtype.kind in "fc" else np.float64).eps)
-    if abs(norm - 1.0) > max(_NORM_TOLERANCE, _NORM_EPS_UNITS * stored_eps):
+    if abs(norm - 1.0) > NORM_TOLERANCE:
         warnings.warn(f"{src.name}: state norm is {norm:.12g}; profiled the "
                       "normalised state", UnnormalisedStateWarning, stacklevel=3)
 
@@ -246,13 +264,18 @@ def _document(src, opts, result, bonds):
            "sites": src.sites, "local_dims": src.local_dims, "log_base": opts.base,
            "norm": result.norm, "route": result.route, "dtype": str(src.dtype),
            "precision": str(src.compute_dtype), "bondscope_version": __version__}
-    cuts, bound = [], 0.0
+    from ._source import source_eps
+
+    # gram floors come from weights resolved to floor^2, unless coarser data set them
+    weights = result.route == "gram" and source_eps(src) <= np.finfo(src.compute_dtype).eps
+    cuts, bound, bounds = [], 0.0, []
     for i, (s, floor) in enumerate(zip(result.spectra, result.floors)):
-        m = spectrum_measures(s, opts.renyi, opts.base_value, floor)
+        m = spectrum_measures(s, opts.renyi, opts.base_value, floor, weights=weights)
         cut = {"position": i + 1,
                "bond_dimension": int(bonds[i]) if bonds else m["schmidt_rank"],
                "schmidt_rank": m["schmidt_rank"], "entropy": m["entropy"],
                "renyi": m["renyi"], "resolution_floor": floor}
+        bounds.append(m)
         if opts.truncating:
             keep = min(kept_rank(s, opts.bond_dim, opts.weight_tol), m["schmidt_rank"])
             cut["kept"] = keep
@@ -270,6 +293,7 @@ def _document(src, opts, result, bonds):
         from ._kernels.sectors import sector_document
 
         doc["charges"] = sector_document(result, _bound_charges(src, opts), opts, cuts)
+    doc["floor_errors"] = floor_errors(bounds, opts.renyi)
     if hasattr(result, "renyi2"):
         from ._kernels.mixedprofile import mixed_document
 

@@ -47,7 +47,8 @@ _COLUMNS = (
     ("status", "status", "done: profiled now; skipped: result already up to date; failed", None),
     ("series", "series", "the series the batch grouped it into", None),
     ("time", "t", "the checkpoint's time attribute", "{:.6g}".format),
-    ("bond_dim", "χ (run)", "the checkpoint's bond_dim attribute", None),
+    ("bond_dim", "χ (run)", ("the run's bond dimension: the checkpoint's attribute (bond_dim, "
+                            "or the batch's --bond-dim-attr), else the largest stored one"), None),
     ("sites", "N", "number of sites", None),
     ("max_bond_dimension", "max χ", "largest stored bond dimension", None),
     ("max_entropy", "max S", "largest entropy over the cuts", _fixed(4)),

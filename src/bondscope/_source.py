@@ -11,10 +11,12 @@ import numpy as np
 
 from ._errors import CheckpointError
 from ._exponent import amplitude_shift, shifted, tensor_shift
+from ._options import PRECISIONS
 from ._vectorshape import power_hint
 
 __all__ = ["ChainSource", "AmplitudeSource", "AXIS_WORDS", "WORD_SETS", "parse_axes",
-           "chain_from_arrays", "amplitudes_from_array", "compute_dtype", "numeric_dtype"]
+           "chain_from_arrays", "amplitudes_from_array", "compute_dtype", "numeric_dtype",
+           "source_eps"]
 
 AXIS_WORDS = ("left", "phys", "right")
 # pure states, density matrices (bondscope._mixed) and purifications
@@ -46,11 +48,30 @@ def numeric_dtype(dtype, where):
 
 
 def compute_dtype(dtype, precision="promote"):
-    """The dtype the sweep works in: float64/complex128, or the stored single precision."""
+    """The dtype the sweep works in: float64/complex128, or the stored single precision.
+
+    Raises
+    ------
+    ValueError
+        ``precision`` is not one of ``promote``, ``stored``.
+    """
+    if precision not in PRECISIONS:
+        raise ValueError(f"precision (--precision) must be one of {', '.join(PRECISIONS)}, "
+                         f"found {precision!r}")
     dtype = np.dtype(dtype)
     if precision == "stored" and dtype in (np.float32, np.complex64):
         return dtype
     return np.dtype(np.complex128 if dtype.kind == "c" else np.float64)
+
+
+def source_eps(src):
+    """Relative precision of a source's numbers: eps of the coarser of its stored dtype
+    and its compute dtype (integers are exact; a float32 state is known to float32 eps
+    even when computed in double)."""
+    dtypes = [np.dtype(src.compute_dtype)]
+    if np.dtype(src.dtype).kind in "fc":
+        dtypes.append(np.dtype(src.dtype))
+    return max(float(np.finfo(d).eps) for d in dtypes)
 
 
 def _canonical(shape, words, first, last):
@@ -77,9 +98,6 @@ def _chain_problem(shapes, labels, words):
             allowed = "3 (or 2 at an end of the chain)"
             return (f"site {labels[i]}: tensor has rank {len(shape)} {tuple(shape)}, "
                     f"expected rank {allowed}"), i
-        if 0 in c:
-            return (f"site {labels[i]}: tensor shaped {tuple(shape)} has an axis of length "
-                    "0; expected bonds and local dimension >= 1"), i
         canon.append(c)
     if canon[0][0] != 1:
         return (f"site {labels[0]}: left bond is {canon[0][0]}, expected 1 at the open end "
@@ -106,6 +124,10 @@ def resolve_axes(shapes, labels, axes=None, where="chain"):
     if len(shapes) < 2:
         raise CheckpointError(f"{where}: found {len(shapes)} site tensor(s); a chain needs at "
                               "least 2 sites to have a cut")
+    for label, shape in zip(labels, shapes):
+        if 0 in shape:
+            raise CheckpointError(f"{where}: site {label}: tensor shaped {tuple(shape)} has an "
+                                  "axis of length 0; expected bonds and local dimension >= 1")
     if axes is not None:
         words = parse_axes(axes)
         if len(words) != 3:

@@ -1,11 +1,38 @@
-"""Plain-text output: the per-cut table and the inspect summary."""
+"""Plain-text output: the per-cut table, the inspect summary, and names made visible."""
 
 import math
 import re
+import unicodedata
 
 from ._estimate import format_bytes
+from ._exponent import norm_text
 
-__all__ = ["profile_table", "inspect_text", "entropy_unit", "natural_key"]
+__all__ = ["profile_table", "inspect_text", "entropy_unit", "natural_key", "visible"]
+
+# control, format (bidi overrides and isolates, zero-width marks), line and paragraph
+# separators, and lone surrogates (undecodable bytes of a file name)
+_HIDDEN = frozenset({"Cc", "Cf", "Zl", "Zp", "Cs"})
+
+
+def _mark(ch):
+    code = ord(ch)
+    if 0xDC80 <= code <= 0xDCFF:  # a byte that was not UTF-8 (surrogateescape)
+        return f"<0x{code - 0xDC00:02X}>"
+    return f"<U+{code:04X}>"
+
+
+def visible(text):
+    """``text`` with every invisible or reordering character spelled out as <U+XXXX>.
+
+    Examples
+    --------
+    >>> visible("run\\u202e5h.h5"), visible("tab\\there"), visible("plain name.h5")
+    ('run<U+202E>5h.h5', 'tab<U+0009>here', 'plain name.h5')
+    """
+    text = str(text)
+    if text.isprintable():
+        return text
+    return "".join(_mark(ch) if unicodedata.category(ch) in _HIDDEN else ch for ch in text)
 
 
 def natural_key(text):
@@ -33,9 +60,10 @@ def profile_table(profile):
     cuts = profile.cuts
     dims = profile.local_dims or []
     dim_text = str(dims[0]) if dims and len(set(dims)) == 1 else ",".join(map(str, dims))
-    lines = [f"{profile.source}",
+    lines = [visible(profile.source),
              f"  {profile.kind}, {profile.sites} sites, local dims {dim_text}, "
-             f"{profile.get('dtype', '?')}, norm {profile.norm:.12g}, "
+             f"{profile.get('dtype', '?')}, "
+             f"norm {norm_text(profile.norm, profile.get('norm_exponent', 0))}, "
              f"route {profile.get('route', '?')}, entropies in {entropy_unit(profile.log_base)}"]
     if profile.get("cut_spectra"):
         lines.append(f"  S, S_a, rank and floor per cut: {profile['cut_spectra']}; S2_A, S2_B, "
@@ -124,7 +152,7 @@ def inspect_text(info):
     dims = info["local_dims"]
     dim_text = str(dims[0]) if len(set(dims)) == 1 else ",".join(map(str, dims))
     est = info["estimate"]
-    lines = [f"{info['source']}",
+    lines = [visible(info["source"]),
              f"  kind          {info['kind']}",
              f"  sites         {info['sites']}",
              f"  local dims    {dim_text}",

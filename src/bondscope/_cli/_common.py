@@ -12,7 +12,7 @@ import sys
 
 __all__ = ["UsageError", "FLAGS", "add_flags", "add_layout_flags", "profile_options",
            "fit_options", "parse_size", "read_input", "print_json", "LAYOUT_FLAGS",
-           "RESOURCE_FLAGS", "MEASURE_FLAGS", "FIT_FLAGS"]
+           "RESOURCE_FLAGS", "MEASURE_FLAGS", "FIT_FLAGS", "RUN_FLAGS"]
 
 
 class UsageError(Exception):
@@ -129,6 +129,15 @@ FLAGS = {
         help="threads for linear algebra (default: BLAS environment or core count)")),
     "quiet": ("resources", ("--quiet",), dict(action="store_true",
                                               help="no progress bar or warnings")),
+    # run metadata
+    "time_attr": ("run", ("--time-attr",), dict(
+        metavar="NAME", help="root attribute holding the run's time (default time)")),
+    "bond_dim_attr": ("run", ("--bond-dim-attr",), dict(
+        metavar="NAME", help="root attribute holding the run's bond dimension, e.g. chi "
+                             "(default bond_dim; else the largest stored bond)")),
+    "weight_attr": ("run", ("--weight-attr",), dict(
+        metavar="NAME", help="root attribute holding the run's discarded weight "
+                             "(default max_discarded_weight)")),
     # scaling fit
     "boundary": ("fit", ("--boundary",), dict(
         help="open (chain with two ends) or periodic (ring); default: the checkpoint's "
@@ -151,8 +160,10 @@ MEASURE_FLAGS = ("renyi", "base", "spectrum", "bond_dim", "weight_tol", "route",
                  "charges", "modulus", "disentangle")
 RESOURCE_FLAGS = ("max_memory", "scratch", "threads", "quiet")
 FIT_FLAGS = ("boundary", "window", "corrections", "parity_exponent")
+RUN_FLAGS = ("time_attr", "bond_dim_attr", "weight_attr")
 _TITLES = {"layout": "checkpoint layout (auto-detected when omitted)", "measures": "measures",
-           "resources": "resources", "fit": "scaling fit"}
+           "resources": "resources", "fit": "scaling fit",
+           "run": "run metadata (root attribute names)"}
 
 
 def add_flags(p, *names):
@@ -183,9 +194,16 @@ def _registered(args, names):
 
 def profile_options(args, **overrides):
     """The :class:`~bondscope.ProfileOptions` that the verb's registered flags set."""
-    from .._options import BLOCK_LAYOUT, LAYOUT, MEASURES, RESOURCES, ProfileOptions
+    from .._options import (
+        BLOCK_LAYOUT,
+        LAYOUT,
+        MEASURES,
+        RESOURCES,
+        RUN_META,
+        ProfileOptions,
+    )
 
-    kwargs = _registered(args, (*LAYOUT, *BLOCK_LAYOUT, *MEASURES, *RESOURCES))
+    kwargs = _registered(args, (*LAYOUT, *BLOCK_LAYOUT, *MEASURES, *RESOURCES, *RUN_META))
     kwargs.update(overrides)
     return ProfileOptions.from_kwargs(**kwargs)
 
