@@ -159,6 +159,11 @@ def estimate(src, route=None, truncating=False, charges=False, disentangle=False
 
         memory, flops, detail = block_estimate(src)
         return Estimate(memory, flops * cplx, detail)
+    if src.kind == "unit-cell":
+        from ._kernels.cell import cell_estimate
+
+        memory, flops, detail = cell_estimate(src)
+        return Estimate(memory, flops * cplx, detail)
     if src.kind != "state-vector":
         shapes = src.shapes
         tensor = max(prod(s) for s in shapes) * item

@@ -49,7 +49,11 @@ def open_any(source, options):
     if isinstance(source, np.ndarray):
         return amplitudes_from_array(source, options.local_dim, options.precision)
     if isinstance(source, (list, tuple)):
-        return chain_from_arrays(list(source), options.axes, options.precision)
+        if options.unit_cell is False:
+            return chain_from_arrays(list(source), options.axes, options.precision)
+        from ._cellsource import tensors_source
+
+        return tensors_source(list(source), options.axes, options.precision, options.unit_cell)
     raise TypeError(f"cannot profile a {type(source).__name__}; pass a checkpoint path, a "
                     "state vector (ndarray) or a list of site tensors")
 
@@ -109,17 +113,30 @@ def _bound_charges(src, opts):
         src.local_dims, getattr(src, "labels", None), where=option_label("charges"))
 
 
+def _cell_kernel(src, opts, tick):
+    from ._kernels.cell import cell_spectra
+
+    return cell_spectra(src, maxiter=opts.transfer_iterations, tick=tick), src.bond_dims
+
+
+def _no_charged_cells(src, opts, tick):
+    raise ValueError(f"{src.name}: charge-resolved spectra (charges=, --charges) of unit "
+                     "cells are not implemented; profile the cell without charges")
+
+
 # source kind -> (kernel, progress steps); a kernel returns (SweepResult, stored bonds or None)
 KERNELS = {
     "mps": (_chain_kernel, lambda src: 2 * src.sites - 1),
     "state-vector": (_amplitude_kernel, lambda src: src.sites - 1),
     "density-matrix": (_mixed_kernel, lambda src: 4 * src.sites - 2),
     "purified": (_mixed_kernel, lambda src: 5 * src.sites - 3),
+    "unit-cell": (_cell_kernel, lambda src: src.sites + 3),
 }
 # with local charges (or a block-sparse source): charge-resolved spectra
 CHARGE_KERNELS = {
     "mps": (_charge_kernel, lambda src: 2 * src.sites),
     "state-vector": (_charge_kernel, lambda src: src.sites - 1),
+    "unit-cell": (_no_charged_cells, lambda src: 0),
 }
 
 
@@ -228,6 +245,17 @@ def profile(source, options=None, *, progress=False, **kwargs):
     return Profile(doc)
 
 
+def _warn_sensitive(doc):
+    from ._measure import ResolutionWarning
+
+    for order, cuts in doc["floor_errors"]["floor_sensitive"].items():
+        if cuts:
+            warnings.warn(f"{doc['source']}: Renyi order {order} is too sensitive to the "
+                          f"resolution floor at {len(cuts)} of {len(doc['cuts'])} cuts "
+                          "(values under the floor could move it; see floor_errors)",
+                          ResolutionWarning, stacklevel=3)
+
+
 def _check_kind(src, opts, charged):
     """Options that do not apply to this kind of source (ValueError)."""
     from ._options import option_label
@@ -238,17 +266,6 @@ def _check_kind(src, opts, charged):
     if charged and src.kind not in CHARGE_KERNELS:
         raise ValueError(f"{option_label('charges')} is not available for a {src.kind} "
                          f"({src.name}); profile without charges")
-
-
-def _warn_sensitive(doc):
-    from ._measure import ResolutionWarning
-
-    for order, cuts in doc["floor_errors"]["floor_sensitive"].items():
-        if cuts:
-            warnings.warn(f"{doc['source']}: Renyi order {order} is too sensitive to the "
-                          f"resolution floor at {len(cuts)} of {len(doc['cuts'])} cuts "
-                          "(values under the floor could move it; see floor_errors)",
-                          ResolutionWarning, stacklevel=3)
 
 
 def _warn_norm(src, norm):
@@ -286,6 +303,8 @@ def _document(src, opts, result, bonds):
             k = resolved.size if opts.spectrum is True else opts.spectrum
             cut["schmidt_values"] = resolved[:k].tolist()
         cuts.append(cut)
+    if hasattr(result, "cell"):
+        doc.update(result.cell)
     if opts.truncating:
         doc["truncation"] = {"bond_dim": opts.bond_dim, "weight_tol": opts.weight_tol,
                              "infidelity": result.infidelity, "bound": bound}
@@ -319,8 +338,9 @@ def inspect(source, options=None, **kwargs):
     dict
         ``kind``, ``source``, ``sites``, ``local_dims``, ``bond_dims`` (MPS),
         ``max_bond_dim``, ``dtype``, ``data_bytes``, ``file_bytes``, ``route``
-        (state vectors), ``estimate`` (memory_bytes, flops, seconds) and
-        ``available_memory``.
+        (state vectors), ``estimate`` (memory_bytes, flops, seconds),
+        ``mutual_estimate`` (the same for :func:`bondscope.mutual_information`
+        without reordering; dense sources) and ``available_memory``.
 
     Raises
     ------
@@ -337,6 +357,8 @@ def inspect(source, options=None, **kwargs):
         if isinstance(source, (str, os.PathLike)):
             info["file_bytes"] = Path(source).stat().st_size
         route = _route(src, opts)
+        if src.kind == "unit-cell":
+            info["unit_cell"] = src.detection
         if src.kind != "state-vector":
             info["bond_dims"] = src.bond_dims
             info["max_bond_dim"] = max(src.bond_dims)
@@ -346,5 +368,9 @@ def inspect(source, options=None, **kwargs):
             info["route"] = route
         info["estimate"] = estimate(src, route, opts.truncating, opts.charges is not None,
                                     opts.disentangle).to_dict()
+        if not hasattr(src, "blocks") and src.kind in ("mps", "state-vector"):
+            from ._kernels.pairtasks import pair_estimate
+
+            info["mutual_estimate"] = pair_estimate(src).to_dict()
         info["available_memory"] = available_memory()
     return info

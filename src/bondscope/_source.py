@@ -352,16 +352,20 @@ def _array(a, where):
     return a
 
 
-def chain_from_arrays(tensors, axes=None, precision="promote"):
-    """A ChainSource (or, for rank-4 tensors, a MixedSource) over in-memory site tensors."""
+def array_family(tensors):
+    """(arrays, compute-ready dtype, labels, shapes) of a list of in-memory site tensors."""
     if isinstance(tensors, np.ndarray) or not len(tensors):
         raise TypeError("site tensors must be a non-empty list of arrays")
     arrays = [_array(t, f"site {i}") for i, t in enumerate(tensors)]
     dtype = np.result_type(*arrays)
     if dtype.kind not in "fc":
         dtype = np.dtype(np.float64)
-    labels = list(range(len(arrays)))
-    shapes = [a.shape for a in arrays]
+    return arrays, dtype, list(range(len(arrays))), [a.shape for a in arrays]
+
+
+def chain_from_arrays(tensors, axes=None, precision="promote"):
+    """A ChainSource (or, for rank-4 tensors, a MixedSource) over in-memory site tensors."""
+    arrays, dtype, labels, shapes = array_family(tensors)
     from ._mixed import MixedSource, is_mixed_family, mixed_axes
 
     # rank-4 tensors: a density matrix or a purification (bondscope._mixed)

@@ -157,6 +157,10 @@ def inspect_text(info):
              f"  sites         {info['sites']}",
              f"  local dims    {dim_text}",
              f"  dtype         {info['dtype']}"]
+    if info["kind"] == "unit-cell":
+        how = "--unit-cell asked" if info["unit_cell"] == "requested" else \
+            "detected: first left bond = last right bond != 1"
+        lines.append(f"  unit cell     {info['sites']} sites repeating ({how})")
     if "bond_dims" in info:
         bonds = info["bond_dims"]
         shown = " ".join(map(str, bonds)) if len(bonds) <= 24 else \
@@ -177,4 +181,9 @@ def inspect_text(info):
     if buffer:
         lines.append(f"  of which      {format_bytes(buffer)} per read for HDF5 chunks "
                      "decompressed whole")
+    if "mutual_estimate" in info:
+        mut = info["mutual_estimate"]
+        lines.append(f"  mutual        {format_bytes(mut['memory_bytes'])} memory, about "
+                     f"{mut['seconds']:.2g} s for {mut['detail']['pairs']} pairs "
+                     "(bondscope mutual, without reordering)")
     return "\n".join(lines)

@@ -75,6 +75,10 @@ FLAGS = {
         metavar="HOW", default="auto",
         help="state vector stored as real numbers with (re, im) in a last axis of length 2: "
              "auto (found from the shape, default), last-axis (force) or none")),
+    "unit_cell": ("layout", ("--unit-cell",), dict(
+        action="store_const", const=True, default=None,
+        help="read the site tensors as the unit cell of an infinite chain (detected without "
+             "this flag when the first left bond equals the last right bond and is not 1)")),
     # block-sparse checkpoints
     "blocks": ("layout", ("--blocks",), dict(
         metavar="PATTERN", help="block-sparse MPS: site groups, with a {site} placeholder, "
@@ -94,6 +98,10 @@ FLAGS = {
     "modulus": ("measures", ("--modulus",), dict(
         metavar="M", help="one per quantity: M >= 2 for a Z_M charge (parity: 2), 0 for an "
                           "integer charge")),
+    # fermionic modes (mutual information)
+    "parity": ("measures", ("--parity",), dict(
+        metavar="P", help="fermion parity 0/1 of each local basis state, e.g. 0,1 or 0,1,1,0: "
+                          "sites are fermionic modes in Jordan-Wigner order (docs/mutual.md)")),
     # measures
     "renyi": ("measures", ("--renyi",), dict(metavar="ALPHAS", type=_words, default=[],
                                              help="Renyi orders, e.g. 0.5,2,inf")),
@@ -127,6 +135,9 @@ FLAGS = {
     "threads": ("resources", ("--threads",), dict(
         metavar="N", type=int,
         help="threads for linear algebra (default: BLAS environment or core count)")),
+    "transfer_iterations": ("resources", ("--transfer-iterations",), dict(
+        metavar="N", type=int,
+        help="unit cells: iteration limit of the transfer-matrix eigensolver (default 10 chi^2)")),
     "quiet": ("resources", ("--quiet",), dict(action="store_true",
                                               help="no progress bar or warnings")),
     # run metadata
@@ -154,11 +165,11 @@ FLAGS = {
         help="decay exponent of the alternating term (default 1, free fermions)")),
 }
 
-LAYOUT_FLAGS = ("state", "tensors", "local_dim", "axes", "complex_parts", "blocks", "block_form",
-                "charge_flow")
+LAYOUT_FLAGS = ("state", "tensors", "local_dim", "axes", "complex_parts", "unit_cell",
+                "blocks", "block_form", "charge_flow")
 MEASURE_FLAGS = ("renyi", "base", "spectrum", "bond_dim", "weight_tol", "route", "precision",
                  "charges", "modulus", "disentangle")
-RESOURCE_FLAGS = ("max_memory", "scratch", "threads", "quiet")
+RESOURCE_FLAGS = ("max_memory", "scratch", "threads", "transfer_iterations", "quiet")
 FIT_FLAGS = ("boundary", "window", "corrections", "parity_exponent")
 RUN_FLAGS = ("time_attr", "bond_dim_attr", "weight_attr")
 _TITLES = {"layout": "checkpoint layout (auto-detected when omitted)", "measures": "measures",
