@@ -15,6 +15,7 @@ import math
 import numpy as np
 
 from .._errors import CheckpointError
+from .._source import source_eps
 from .store import BondStore
 
 __all__ = ["renyi2_sweeps", "Renyi2", "mixed_cost", "HERMITIAN_TOLERANCE"]
@@ -47,13 +48,6 @@ class Renyi2:
         self.left, self.right, self.errors = left, right, errors
         self.purity, self.purity_error = purity, purity_error
         self.trace, self.hermiticity = trace, hermiticity
-
-
-def _unit(src):
-    """Unit roundoff of the work: the compute dtype's, or the stored data's when coarser
-    (float32 checkpoints carry only their own precision)."""
-    stored = src.dtype if src.dtype.kind in "fc" else np.dtype(np.float64)
-    return max(float(np.finfo(src.compute_dtype).eps), float(np.finfo(stored).eps))
 
 
 def _scaled(x):
@@ -133,7 +127,7 @@ def _dm_renyi2(src, store, tick):
     quads, (tr, ltr, lscale), (hs, lhs), (sq, lsq) = _dm_sweeps(src, store, tick)
     chi = max(max(s[0], s[3]) for s in src.shapes4)
     d2 = max(s[1] * s[2] for s in src.shapes4)
-    u = _unit(src)
+    u = source_eps(src)
     n = src.sites
     gamma = _SAFETY * u * n * chi * d2
     if not hs > 0:
@@ -245,7 +239,7 @@ def _purified_renyi2(src, store, tick):
         tick()
     chi = max(max(s[0], s[3]) for s in src.shapes4)
     dd = max(s[1] * s[2] for s in src.shapes4)
-    u = _unit(src)
+    u = source_eps(src)
     step_q = _SAFETY * u * n * 4 * chi * dd
     rel_t = _SAFETY * u * n * chi * dd / norm2[0]
     quads = [(qa, la, qb, lb) for (qa, la), (qb, lb) in zip(lefts, rights)]
