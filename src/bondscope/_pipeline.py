@@ -119,9 +119,12 @@ def _cell_kernel(src, opts, tick):
     return cell_spectra(src, maxiter=opts.transfer_iterations, tick=tick), src.bond_dims
 
 
-def _no_charged_cells(src, opts, tick):
-    raise ValueError(f"{src.name}: charge-resolved spectra (charges=, --charges) of unit "
-                     "cells are not implemented; profile the cell without charges")
+def _charged_cell_kernel(src, opts, tick):
+    from ._kernels.cellcharges import charged_cell_spectra
+
+    result = charged_cell_spectra(src, _bound_charges(src, opts),
+                                  maxiter=opts.transfer_iterations, tick=tick)
+    return result, src.bond_dims
 
 
 # source kind -> (kernel, progress steps); a kernel returns (SweepResult, stored bonds or None)
@@ -136,7 +139,7 @@ KERNELS = {
 CHARGE_KERNELS = {
     "mps": (_charge_kernel, lambda src: 2 * src.sites),
     "state-vector": (_charge_kernel, lambda src: src.sites - 1),
-    "unit-cell": (_no_charged_cells, lambda src: 0),
+    "unit-cell": (_charged_cell_kernel, lambda src: src.sites + 3),
 }
 
 
