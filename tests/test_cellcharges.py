@@ -7,6 +7,7 @@ XX cells from the generator scripts/cellstate.py (iTEBD from a Neel state).
 """
 
 import math
+import re
 import sys
 import warnings
 from pathlib import Path
@@ -18,7 +19,7 @@ from reference import cells
 
 import bondscope
 from bondscope._charges import parse_charges
-from bondscope._kernels.cellcharges import bond_charges, sector_spectra
+from bondscope._kernels.cellcharges import bond_charges, charge_gauge, sector_spectra
 from bondscope._kernels.transfer import left_map
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -61,7 +62,8 @@ def test_sectors_are_the_whole_spectrum():
                       for e in np.eye(chi * chi)], axis=1)
     full = np.linalg.eigvals(dense)
     eta = np.abs(full).max()
-    union = np.concatenate([v for _, v in sector_spectra(cell, labels, gauge, eta, chi * chi)])
+    turned = charge_gauge(cell, gauge)
+    union = np.concatenate([v for _, v in sector_spectra(turned, labels[0], eta, chi * chi)])
     assert union.size == full.size
     np.testing.assert_allclose(np.sort_complex(union), np.sort_complex(full / eta),
                                atol=1e4 * EPS)
@@ -79,7 +81,18 @@ CASES = [
 
 @pytest.mark.parametrize("cell, charges, expected", CASES)
 def test_transfer_sectors(cell, charges, expected):
-    p = quiet_profile(cell, charges=charges)
+    p = quiet_profile(cell, charges=charges, spectrum=True)
+    plain = quiet_profile(cell, spectrum=True)
+    for cut, ref in zip(p.cuts, plain.cuts):
+        # the sectors' values, times sqrt(p(q)), are the bond's spectrum (common practice)
+        union = np.concatenate([np.sqrt(s["probability"]) * np.array(s["schmidt_values"])
+                                for s in cut["sectors"]])
+        np.testing.assert_allclose(np.sort(union)[::-1], ref["schmidt_values"][:union.size],
+                                   atol=cut["resolution_floor"])
+        assert sum(s["probability"] for s in cut["sectors"]) == pytest.approx(1, abs=1e-12)
+        # S = S_num + S_conf (Lukin et al., Science 364, 256 (2019))
+        assert cut["number_entropy"] + cut["configurational_entropy"] == \
+            pytest.approx(ref["entropy"], abs=1e-10)
     sectors = {s["charge"]: s for s in p["transfer_sectors"]}
     assert sectors[0]["eigenvalues"][0] == pytest.approx(1, abs=1e3 * EPS)
     top = sorted((v for s in sectors.values() for v in s["eigenvalues"]), reverse=True)
@@ -113,3 +126,26 @@ BAD = [
 def test_refused(cell, charges, modulus, error, text):
     with pytest.raises(error, match=text):
         quiet_profile(cell, charges=charges, modulus=modulus)
+
+
+CLI = [
+    # generated symmetric cell: profiled, the text names the relative bond charges
+    pytest.param(xx_cell(), 0, "bond charges relative", id="symmetric"),
+    # the fixture that mixes charges: one-line error, exit status 3
+    pytest.param(fixture_cell(8), 3, "error: .*does not conserve", id="mixing"),
+]
+
+
+@pytest.mark.parametrize("cell, status, text", CLI)
+def test_cli(cell, status, text, tmp_path, capsys):
+    from bondscope._cli import main
+
+    path = tmp_path / "cell.h5"
+    with h5py.File(path, "w") as f:
+        for k, a in enumerate(cell):
+            f[f"cell/site_{k}"] = a
+    before = path.read_bytes()
+    assert main(["profile", str(path), "--charges", "0,1"]) == status
+    out = capsys.readouterr()
+    assert re.search(text, out.out + out.err)
+    assert len((out.err.strip() or "x").splitlines()) == 1 and path.read_bytes() == before

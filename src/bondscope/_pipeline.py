@@ -311,6 +311,10 @@ def _document(src, opts, result, bonds):
     if opts.truncating:
         doc["truncation"] = {"bond_dim": opts.bond_dim, "weight_tol": opts.weight_tol,
                              "infidelity": result.infidelity, "bound": bound}
+    if hasattr(result, "cell_sectors"):
+        from ._kernels.cellcharges import cell_sector_document
+
+        doc["charges"] = cell_sector_document(result, _bound_charges(src, opts), opts, cuts)
     if hasattr(result, "sectors"):
         from ._kernels.sectors import sector_document
 

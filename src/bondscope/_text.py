@@ -116,8 +116,13 @@ def profile_table(profile):
     charges = profile.get("charges")
     if charges:
         moduli = ",".join(map(str, charges["moduli"]))
-        lines.append(f"charges {charges['local']} (moduli {moduli}): total charge "
-                     f"{charges['total']}, weight outside it {charges['outside_weight']:.1e}")
+        if charges["total"] is None:        # a unit cell: bond charges only, lowest 0
+            lines.append(f"charges {charges['local']} (moduli {moduli}): bond charges "
+                         f"relative, lowest 0; charge equations hold to "
+                         f"{charges['residual']:.1e}")
+        else:
+            lines.append(f"charges {charges['local']} (moduli {moduli}): total charge "
+                         f"{charges['total']}, weight outside it {charges['outside_weight']:.1e}")
     return "\n".join(lines)
 
 

@@ -20,7 +20,8 @@ from .transfer import (
     transfer_spectrum,
 )
 
-__all__ = ["INJECTIVE_GAP", "CellResult", "cell_estimate", "cell_spectra"]
+__all__ = ["INJECTIVE_GAP", "CellResult", "bond_grams", "cell_estimate", "cell_spectra",
+           "square_root"]
 
 # a relative gap 1 - |lambda_2 / lambda_1| below this is a degenerate dominant eigenvalue
 # (our choice: far below any finite-chi gap, far above the eigensolver's rounding)
@@ -36,11 +37,26 @@ class CellResult(SweepResult):
         self.cell = cell
 
 
-def _square_root(m):
+def square_root(m):
     """(X, ||m||_2) with X^dag X = m for a Hermitian positive m (negative rounding clipped)."""
     w, v = np.linalg.eigh(m)
     top = float(max(w[-1], 0.0))
     return np.sqrt(np.clip(w, 0.0, None))[:, None] * v.conj().T, top
+
+
+def bond_grams(cell, left, right):
+    """(l_k, r_k) for every bond k = 1..n (after site k) from the fixed points at the bond
+    between cells, each scaled to unit norm."""
+    lefts = [left]
+    for a in cell[:-1]:
+        m = left_step(lefts[-1], a)
+        lefts.append(m / np.linalg.norm(m))
+    rights = [right]
+    for a in reversed(cell[1:]):
+        m = right_step(rights[0], a)
+        rights.insert(0, m / np.linalg.norm(m))
+    # bond k (after site k) sees l after sites 1..k and r before sites k+1..n
+    return lefts[1:] + [lefts[0]], rights
 
 
 def _check_positive(m, slack, side, where):
@@ -134,20 +150,11 @@ def cell_spectra(src, *, bond_dim=None, weight_tol=None, maxiter=None, count=SPE
     slack = 10 * math.sqrt(max(delta_l, delta_r))
     _check_positive(left, slack, "left", src.name)
     _check_positive(right, slack, "right", src.name)
-    lefts = [left]
-    for a in cell[:-1]:
-        m = left_step(lefts[-1], a)
-        lefts.append(m / np.linalg.norm(m))
-    rights = [right]
-    for a in reversed(cell[1:]):
-        m = right_step(rights[0], a)
-        rights.insert(0, m / np.linalg.norm(m))
-    # bond k (after site k) sees l after sites 1..k and r before sites k+1..n
-    lefts = lefts[1:] + [lefts[0]]
+    lefts, rights = bond_grams(cell, left, right)
     spectra, floors = [], []
     for k in range(n):
-        x, top_l = _square_root(lefts[k])
-        y, top_r = _square_root(rights[k])
+        x, top_l = square_root(lefts[k])
+        y, top_r = square_root(rights[k])
         s = svdvals(x @ y.conj().T)
         total = float(np.linalg.norm(s))
         s = s / total

@@ -18,10 +18,14 @@ import math
 import numpy as np
 
 from .._errors import CheckpointError
-from .cell import cell_spectra
-from .transfer import SPECTRUM_COUNT, left_step
+from .blocksweep import charge_groups
+from .cell import bond_grams, cell_spectra, square_root
+from .linalg import svdvals
+from .sectors import sector_measures
+from .transfer import SPECTRUM_COUNT, fixed_point, left_step, transfer_spectrum
 
-__all__ = ["CHARGE_UNKNOWNS", "bond_charges", "charged_cell_spectra", "sector_spectra"]
+__all__ = ["CHARGE_UNKNOWNS", "bond_charges", "bond_sectors", "cell_sector_document",
+           "charge_gauge", "charged_cell_spectra", "sector_spectra"]
 
 # largest n chi^2 (unknowns of the charge equations) solved densely: 2048 is a
 # two-site cell at chi 32, about 70 MB and a few seconds (our limit)
@@ -77,10 +81,10 @@ def bond_charges(cell, charges, where="unit cell"):
 
     Returns
     -------
-    labels : ndarray of int64, shape (chi, n_q)
-        Charge of each basis vector of the bond before site 1 (up to one
-        offset per quantity: only differences have meaning on an infinite
-        chain).
+    labels : list of ndarray of int64, shapes (chi_k, n_q)
+        Per bond k = 0..n-1 (before site k + 1), the charge of each column of
+        G_k, the lowest 0 (one offset per quantity and bond: only differences
+        have meaning on an infinite chain).
     gauge : list of ndarray
         G_k (chi_k, chi_k) per bond k = 0..n-1 whose columns have definite
         charges; ``G_k^-1 A_k^s G_{k+1}`` is block sparse.
@@ -125,7 +129,7 @@ def bond_charges(cell, charges, where="unit cell"):
             f"{where}: the cell does not conserve the charges {charges.spec_text()} (relative "
             f"residual {worst:.2g} of the bond charge equations); the tensors mix charge "
             "sectors: profile without charges, or check the local charge list")
-    gauge, labels0 = [], None
+    gauge, labels = [], []
     for k in range(len(cell)):
         mix = sum(w * ops[k] for w, ops in zip(_WEIGHTS, per))
         _, g = np.linalg.eig(mix)
@@ -140,9 +144,15 @@ def bond_charges(cell, charges, where="unit cell"):
                 "cell does not conserve the charges, or its gauge is too ill-conditioned to "
                 "resolve them; profile without charges")
         gauge.append(g)
-        if k == 0:
-            labels0 = np.round(real).astype(np.int64)
-    return labels0, gauge, worst
+        labels.append(np.round(real).astype(np.int64))
+    return labels, gauge, worst
+
+
+def charge_gauge(cell, gauge):
+    """The cell in the gauge of definite bond charges, G_k^-1 A_k^s G_{k+1}."""
+    n = len(cell)
+    return [np.einsum("ij,jsk,kl->isl", np.linalg.inv(gauge[k]), a, gauge[(k + 1) % n])
+            for k, a in enumerate(cell)]
 
 
 def _sector_map(cell, rows, cols, chi):
@@ -158,15 +168,15 @@ def _sector_map(cell, rows, cols, chi):
     return apply
 
 
-def sector_spectra(cell, labels, gauge, eta, count):
+def sector_spectra(turned, labels, eta, count):
     """Leading transfer eigenvalues in each charge-difference sector.
 
     Parameters
     ----------
-    cell : list of ndarray
-        Site tensors (l, d, r).
-    labels, gauge
-        From :func:`bond_charges`.
+    turned : list of ndarray
+        Site tensors (l, d, r) in the charge gauge (:func:`charge_gauge`).
+    labels : ndarray, shape (chi, n_q)
+        Charges of the bond before site 1 (``bond_charges(...)[0][0]``).
     eta : float
         Modulus of the dominant eigenvalue of the whole transfer matrix.
     count : int
@@ -181,15 +191,11 @@ def sector_spectra(cell, labels, gauge, eta, count):
 
     Notes
     -----
-    The cell is brought to the charge gauge (A_k^s -> G_k^-1 A_k^s G_{k+1});
-    each sector's map is built densely from its m = #{(i, j): q_j - q_i = dq}
+    Each sector's map is built densely from its m = #{(i, j): q_j - q_i = dq}
     applications, O(m n d chi^3), and diagonalised by LAPACK, O(m^3): the
     sectors together cost at most chi^2 applications, as the dense route
     of the whole matrix.
     """
-    n = len(cell)
-    turned = [np.einsum("ij,jsk,kl->isl", np.linalg.inv(gauge[k]), a, gauge[(k + 1) % n])
-              for k, a in enumerate(cell)]
     chi = labels.shape[0]
     diff = labels[None, :, :] - labels[:, None, :]              # (bra i, ket j, n_q)
     keys = np.unique(diff.reshape(-1, labels.shape[1]), axis=0)
@@ -233,13 +239,14 @@ def charged_cell_spectra(src, charges, *, maxiter=None, count=SPECTRUM_COUNT, ti
     result = cell_spectra(src, maxiter=maxiter, count=count, tick=tick)
     cell = [src.tensor(i) for i in range(src.sites)]
     labels, gauge, residual = bond_charges(cell, charges, src.name)
+    turned = charge_gauge(cell, gauge)
     n, chi = len(cell), cell[0].shape[0]
     eps = float(np.finfo(np.float64 if src.compute_dtype.itemsize >= 8 else np.float32).eps)
     cond = max(np.linalg.cond(g) for g in gauge)
     error = chi * eps * cond ** 2 + residual
     eta = result.norm ** 2
     sectors = []
-    for key, values in sector_spectra(cell, labels, gauge, eta, count):
+    for key, values in sector_spectra(turned, labels[0], eta, count):
         mod = np.abs(values)
         lead = mod[1] if all(k == 0 for k in key) and mod.size > 1 else mod[0]
         xi, xi_err = _decay(lead, n, error)
@@ -247,7 +254,65 @@ def charged_cell_spectra(src, charges, *, maxiter=None, count=SPECTRUM_COUNT, ti
                         "phases": np.angle(values).tolist(), "correlation_length": xi,
                         "correlation_length_error": xi_err, "eigenvalue_error": error})
     result.cell.update({"transfer_sectors": sectors, "charge_residual": residual})
+    result.cell_sectors, leaks = bond_sectors(turned, labels, maxiter, src.name)
+    result.floors = [f + math.sqrt(leak + error) for f, leak in zip(result.floors, leaks)]
     return result
+
+
+def bond_sectors(turned, labels, maxiter=None, where="unit cell"):
+    """Schmidt values per charge sector on every bond of a cell in the charge gauge.
+
+    Returns
+    -------
+    sectors : list of list of (tuple, ndarray)
+        Per bond k = 1..n (after site k): (bond charge, the sector's values of
+        the normalised state, descending), sectors in ascending charge.
+    leaks : list of float
+        Per bond, the relative weight of the fixed points outside the charge
+        blocks (rounding of the gauge; zero for an exact symmetry).
+
+    Notes
+    -----
+    In the charge gauge l_k and r_k are block diagonal, so X_k Y_k is too
+    and its singular values split by sector: one eigendecomposition pair
+    and SVD per block, sum_q chi_q^3 work after the fixed points (found
+    again in this gauge, as :func:`~bondscope._kernels.cell.cell_spectra`).
+    """
+    _, left, _ = transfer_spectrum(turned, 2, maxiter, where)
+    right, _ = fixed_point(turned, maxiter, where)
+    lefts, rights = bond_grams(turned, left, right)
+    n = len(turned)
+    out, leaks = [], []
+    for k in range(n):
+        groups = charge_groups(labels[(k + 1) % n])
+        blocks, inside = [], 0.0
+        for key, idx in groups.items():
+            lq, rq = lefts[k][np.ix_(idx, idx)], rights[k][np.ix_(idx, idx)]
+            inside += np.linalg.norm(lq) ** 2 + np.linalg.norm(rq) ** 2
+            x, _ = square_root(lq)
+            y, _ = square_root(rq)
+            blocks.append((key, svdvals(x @ y.conj().T)))
+        total = math.sqrt(sum(float(np.sum(v * v)) for _, v in blocks))
+        out.append([(key, v / total) for key, v in blocks])
+        leaks.append(max(0.0, 1.0 - inside / 2.0))
+    return out, leaks
+
+
+def cell_sector_document(result, charges, opts, cuts):
+    """Add each bond's charge-resolved fields (as for finite chains) to its cut entry;
+    return the top-level ``charges`` field (``total`` None: an infinite chain has no
+    total charge; ``residual``: of the bond charge equations)."""
+    for cut, sectors, floor in zip(cuts, result.cell_sectors, result.floors):
+        m = sector_measures(sectors, floor, charges, renyi=opts.renyi, base=opts.base_value)
+        for sec in m["sectors"]:
+            values = sec.pop("values")
+            if opts.spectrum:
+                k = values.size if opts.spectrum is True else opts.spectrum
+                sec["schmidt_values"] = values[:k].tolist()
+        cut.update(m)
+    return {"local": charges.spec_text(), "moduli": list(charges.moduli),
+            "quantities": charges.quantities, "total": None,
+            "residual": result.cell["charge_residual"]}
 
 
 def _decay(ratio, n, error):
