@@ -163,6 +163,11 @@ def estimate(src, route=None, truncating=False, charges=False, disentangle=False
         from ._kernels.cell import cell_estimate
 
         memory, flops, detail = cell_estimate(src)
+        if charges:
+            from ._kernels.cellcharges import charge_estimate
+
+            extra_memory, extra_flops = charge_estimate(src)
+            memory, flops = memory + extra_memory, 2 * flops + extra_flops
         return Estimate(memory, flops * cplx, detail)
     if src.kind != "state-vector":
         shapes = src.shapes

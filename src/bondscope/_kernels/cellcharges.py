@@ -25,7 +25,7 @@ from .sectors import sector_measures
 from .transfer import SPECTRUM_COUNT, fixed_point, left_step, transfer_spectrum
 
 __all__ = ["CHARGE_UNKNOWNS", "bond_charges", "bond_sectors", "cell_sector_document",
-           "charge_gauge", "charged_cell_spectra", "sector_spectra"]
+           "charge_estimate", "charge_gauge", "charged_cell_spectra", "sector_spectra"]
 
 # largest n chi^2 (unknowns of the charge equations) solved densely: 2048 is a
 # two-site cell at chi 32, about 70 MB and a few seconds (our limit)
@@ -38,6 +38,25 @@ CHARGE_TOLERANCE = 1e-4
 RESIDUAL_TOLERANCE = 1e-8
 # irrational weights combining several quantities into one operator to diagonalise
 _WEIGHTS = (1.0, math.sqrt(2.0), math.sqrt(3.0), math.sqrt(5.0), math.sqrt(7.0))
+
+
+def charge_estimate(src):
+    """(memory bytes, flops) of the bond charges (one quantity at a time) and sectors.
+
+    Notes
+    -----
+    The dense system: n d chi^2 rows of n chi^2 + n unknowns (complex, 16 bytes), its
+    copy inside LAPACK, and a least-squares solve of rows x unknowns^2 work; the fixed
+    points again (counted by the caller as a second cell run) and the sectors' matrices,
+    at most chi^4 entries together.
+    """
+    shapes = src.shapes
+    unknowns = sum(s[0] ** 2 for s in shapes) + len(shapes)
+    rows = sum(s[0] * s[1] * s[2] for s in shapes)
+    chi = shapes[0][0]
+    memory = 2 * rows * unknowns * 16 + chi ** 4 * 16
+    flops = 4 * rows * unknowns ** 2 + 30 * chi ** 6
+    return memory, flops
 
 
 def _charge_operators(cell, local, where):
