@@ -21,7 +21,7 @@ from .._errors import CheckpointError
 from .blocksweep import charge_groups
 from .cell import bond_grams, cell_spectra, square_root
 from .linalg import svdvals
-from .sectors import sector_measures
+from .sectors import add_sector_fields
 from .transfer import SPECTRUM_COUNT, fixed_point, left_step, transfer_spectrum
 
 __all__ = ["CHARGE_UNKNOWNS", "bond_charges", "bond_sectors", "cell_sector_document",
@@ -321,14 +321,7 @@ def cell_sector_document(result, charges, opts, cuts):
     """Add each bond's charge-resolved fields (as for finite chains) to its cut entry;
     return the top-level ``charges`` field (``total`` None: an infinite chain has no
     total charge; ``residual``: of the bond charge equations)."""
-    for cut, sectors, floor in zip(cuts, result.cell_sectors, result.floors):
-        m = sector_measures(sectors, floor, charges, renyi=opts.renyi, base=opts.base_value)
-        for sec in m["sectors"]:
-            values = sec.pop("values")
-            if opts.spectrum:
-                k = values.size if opts.spectrum is True else opts.spectrum
-                sec["schmidt_values"] = values[:k].tolist()
-        cut.update(m)
+    add_sector_fields(cuts, result.cell_sectors, result.floors, charges, opts)
     return {"local": charges.spec_text(), "moduli": list(charges.moduli),
             "quantities": charges.quantities, "total": None,
             "residual": result.cell["charge_residual"]}

@@ -39,8 +39,8 @@ from .._source import source_eps
 from .blocksweep import charge_groups
 from .conditioning import GaugeLedger, warn_large_floor
 
-__all__ = ["SectorResult", "charge_spectra", "sector_measures", "leak_tolerance",
-           "sector_document", "block_estimate", "CHARGE_SWEEP_WORK"]
+__all__ = ["SectorResult", "add_sector_fields", "charge_spectra", "sector_measures",
+           "leak_tolerance", "sector_document", "block_estimate", "CHARGE_SWEEP_WORK"]
 
 # A state whose weight outside its dominant total charge is at most this many
 # eps of its stored precision counts as an eigenstate (as the norm check does).
@@ -453,6 +453,19 @@ def sector_measures(sectors, floor, charges, *, renyi=(), base=math.e):
             "charge_variance": variances[0] if one else variances}
 
 
+def add_sector_fields(cuts, sectors_per_cut, floors, charges, opts):
+    """Extend each cut's entry with its :func:`sector_measures` (``schmidt_values`` per
+    sector with ``opts.spectrum``)."""
+    for cut, sectors, floor in zip(cuts, sectors_per_cut, floors):
+        m = sector_measures(sectors, floor, charges, renyi=opts.renyi, base=opts.base_value)
+        for sec in m["sectors"]:
+            values = sec.pop("values")
+            if opts.spectrum:
+                k = values.size if opts.spectrum is True else opts.spectrum
+                sec["schmidt_values"] = values[:k].tolist()
+        cut.update(m)
+
+
 def sector_document(result, charges, opts, cuts):
     """Add the charge-resolved fields to each cut's document entry; return the top-level
     ``charges`` field.
@@ -468,14 +481,7 @@ def sector_document(result, charges, opts, cuts):
         ``number_entropy``, ``configurational_entropy``, ``charge_mean`` and
         ``charge_variance`` (docs/profile-schema.md).
     """
-    for cut, sectors, floor in zip(cuts, result.sectors, result.floors):
-        m = sector_measures(sectors, floor, charges, renyi=opts.renyi, base=opts.base_value)
-        for sec in m["sectors"]:
-            values = sec.pop("values")
-            if opts.spectrum:
-                k = values.size if opts.spectrum is True else opts.spectrum
-                sec["schmidt_values"] = values[:k].tolist()
-        cut.update(m)
+    add_sector_fields(cuts, result.sectors, result.floors, charges, opts)
     return {"local": charges.spec_text(), "moduli": list(charges.moduli),
             "quantities": charges.quantities, "total": charges.label(result.total_charge),
             "outside_weight": result.leak}
