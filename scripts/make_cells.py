@@ -14,7 +14,7 @@ data/cells/kp0911_chi{8,12,16,24}.h5
 data/cells/kp0912_chi{4,6,8,12}.h5
     Run "KP-0912": the same chain in its paramagnetic phase, g = 1.5, whose
     correlation length saturates.
-tests/fixtures/cells/xx_chi{8,12,16,24,32}.h5
+tests/fixtures/cells/xx_chi{8,12,16,24,32,48}.h5
     The infinite XX chain (critical, c = 1), for the tests.
 
 Each file holds ``/cell/site_0`` and ``/cell/site_1`` (left, phys, right)
@@ -33,7 +33,7 @@ from threadpoolctl import threadpool_limits
 ROOT = Path(__file__).resolve().parent.parent
 CRITICAL_DIMS = (8, 12, 16, 24)
 GAPPED_DIMS = (4, 6, 8, 12)
-XX_DIMS = (8, 12, 16, 24, 32)
+XX_DIMS = (8, 12, 16, 24, 32, 48)
 # the self-dual gates keep g = 1 critical at any step; the O(dt) truncation bias of the
 # gate updates sets the last step (measured: c = 0.497 +- 0.021 over chi 8-24)
 CRITICAL_STEPS = (0.1, 0.03)
