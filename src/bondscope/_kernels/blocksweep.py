@@ -21,6 +21,7 @@ from contextlib import contextmanager
 
 import numpy as np
 
+from .balance import balanced_blocks
 from .linalg import r_factor, svdvals
 from .parallel import blas_threads
 
@@ -231,7 +232,7 @@ def sector_pool():
             yield lambda f, items: list(ex.map(f, items))
 
 
-def block_chain(leftward, rightward, first, last, n, store, tick, dtype):
+def block_chain(leftward, rightward, first, last, n, store, tick, dtype, name, labels):
     """Charge-resolved Schmidt values of every cut from block-wise sweeps.
 
     Parameters
@@ -249,6 +250,8 @@ def block_chain(leftward, rightward, first, last, n, store, tick, dtype):
         Called once per site tensor processed.
     dtype : numpy dtype
         Compute dtype.
+    name, labels : str, list
+        The source's name and site labels, for messages.
 
     Returns
     -------
@@ -256,6 +259,9 @@ def block_chain(leftward, rightward, first, last, n, store, tick, dtype):
         Per cut (position 1..N-1), the raw singular values of each sector,
         keyed by the bond charge (not yet relative to the left end).
     first_key, last_key : tuple
+    removed : int
+        The first cut's values are those of the state times 2^-removed: every
+        bond matrix is kept near unit size (:func:`.balance.balanced_blocks`).
 
     Notes
     -----
@@ -275,13 +281,16 @@ def block_chain(leftward, rightward, first, last, n, store, tick, dtype):
     -- block-sparse tensors of symmetric tensor networks.
     """
     env_keys = [None] * (n + 1)
+    removed = 0
     with sector_pool() as pool:
         env = None
         for i, blocks in leftward:
             if env is None:
                 env = {last(): np.ones((1, 1), dtype=dtype)}
-            env = _run(pool, _lq_sector, _by_sector(blocks, env, left=True))
+            env, e = balanced_blocks(_run(pool, _lq_sector, _by_sector(blocks, env, left=True)),
+                                     name, labels[i])
             if i > 0:
+                removed += e
                 env_keys[i] = list(env)
                 for j, q in enumerate(env_keys[i]):
                     store.put(f"L{i}:{j}", env[q])
@@ -289,7 +298,9 @@ def block_chain(leftward, rightward, first, last, n, store, tick, dtype):
         r = {first(): np.ones((1, 1), dtype=dtype)}
         cuts = []
         for i, blocks in rightward:
-            r = _run(pool, _qr_sector, _by_sector(blocks, r, left=False))
+            r, e = balanced_blocks(_run(pool, _qr_sector, _by_sector(blocks, r, left=False)),
+                                   name, labels[i])
+            removed += e if i == 0 else 0
             tick()
             if i == n - 1:
                 break
@@ -299,4 +310,4 @@ def block_chain(leftward, rightward, first, last, n, store, tick, dtype):
                 if q in r:
                     met[q] = (r[q], e)
             cuts.append(sorted(_run(pool, _cut_values, met).items()))
-    return cuts, first(), last()
+    return cuts, first(), last(), removed

@@ -13,6 +13,7 @@ from concurrent.futures import ThreadPoolExecutor
 import numpy as np
 
 from .._measure import resolution_floor
+from .balance import balanced
 from .linalg import SweepResult, normalised, r_factor, svdvals
 from .parallel import dask_client, gathered, lanes, locked
 from .store import BondStore
@@ -61,13 +62,16 @@ def _sequential_chain(src, store, tick, values, bond_dim=None, weight_tol=None):
     """Singular values of R_i L_i per cut, right-to-left sweep then left-to-right sweep.
 
     With ``bond_dim`` or ``weight_tol``, the left-to-right sweep also compresses
-    the state; returns (raw values per cut, discarded weights per cut).
+    the state; returns (raw values per cut, discarded weights per cut, log2 of
+    the first cut's bond matrices' removed scale).
     """
-    n = src.sites
+    n, name, site = src.sites, src.name, src.labels
     track = bond_dim is not None or weight_tol is not None
     env = np.ones((1, 1), dtype=src.compute_dtype)
+    removed = 0
     for i in range(n - 1, 0, -1):
-        env = lq_step(src.tensor(i), env)
+        env, e = balanced(lq_step(src.tensor(i), env), name, site[i])
+        removed += e
         store.put(f"L{i}", env)
         tick()
     raw, eps = [], []
@@ -77,13 +81,14 @@ def _sequential_chain(src, store, tick, values, bond_dim=None, weight_tol=None):
         env = store.pop(f"L{i + 1}")
         if track:
             block = (w @ a.reshape(a.shape[0], -1)).reshape(-1, a.shape[2])
-            u, e = truncation_step(block @ env, bond_dim, weight_tol)
-            w = u.conj().T @ block
-            eps.append(e)
-        r = qr_step(r, a)
+            u, lost = truncation_step(block @ env, bond_dim, weight_tol)
+            w = balanced(u.conj().T @ block, name, site[i])[0]
+            eps.append(lost)
+        r, e = balanced(qr_step(r, a), name, site[i])
+        removed += e if i == 0 else 0
         raw.append(values(r, env))
         tick()
-    return raw, eps
+    return raw, eps, removed
 
 
 class _Rendezvous:
@@ -119,10 +124,12 @@ def _concurrent_chain(src, store, tick, values):
     right-to-left one from the last site and the left-to-right one from the
     first.  Each cut's values are taken by whichever sweep reaches that cut
     second; the first one's bond matrix waits in the store.  Each thread does
-    one sweep and about half of the bond SVDs.
+    one sweep and about half of the bond SVDs.  Returns (raw values per cut,
+    log2 of the first cut's bond matrices' removed scale).
     """
-    n = src.sites
+    n, name, site = src.sites, src.name, src.labels
     raw = [None] * (n - 1)
+    removed = [0, 0]                    # by the leftward sweep (in all), the first R
     meet = _Rendezvous(store).meet
     stop = threading.Event()
     one = np.ones((1, 1), dtype=src.compute_dtype)
@@ -132,7 +139,8 @@ def _concurrent_chain(src, store, tick, values):
         for i in range(n - 1, 0, -1):
             if stop.is_set():
                 return
-            env = lq_step(src.tensor(i), env)
+            env, e = balanced(lq_step(src.tensor(i), env), name, site[i])
+            removed[0] += e
             waiting = meet(i, "L", env)
             if waiting is not None:
                 raw[i - 1] = values(waiting, env)
@@ -143,7 +151,8 @@ def _concurrent_chain(src, store, tick, values):
         for i in range(n - 1):
             if stop.is_set():
                 return
-            r = qr_step(r, src.tensor(i))
+            r, e = balanced(qr_step(r, src.tensor(i)), name, site[i])
+            removed[1] += e if i == 0 else 0
             waiting = meet(i + 1, "R", r)
             if waiting is not None:
                 raw[i] = values(r, waiting)
@@ -153,7 +162,7 @@ def _concurrent_chain(src, store, tick, values):
         other = pool.submit(_until_failure, leftward, stop)
         _until_failure(rightward, stop)
         other.result()
-    return raw
+    return raw, sum(removed)
 
 
 def chain_spectra(src, *, bond_dim=None, weight_tol=None, scratch=None, tick=None):
@@ -219,9 +228,10 @@ def chain_spectra(src, *, bond_dim=None, weight_tol=None, scratch=None, tick=Non
     values = _bond_values(dask_client())
     with BondStore(scratch) as store, lanes() as count:
         if track or count < 2:
-            raw, eps = _sequential_chain(src, store, tick, values, bond_dim, weight_tol)
+            raw, eps, removed = _sequential_chain(src, store, tick, values, bond_dim,
+                                                  weight_tol)
         else:
-            raw, eps = _concurrent_chain(src, store, tick, values), []
+            (raw, removed), eps = _concurrent_chain(src, store, tick, values), []
     raw = gathered(raw)
     spectra, floors, norm = [], [], None
     for i, s in enumerate(raw):
@@ -229,4 +239,5 @@ def chain_spectra(src, *, bond_dim=None, weight_tol=None, scratch=None, tick=Non
         norm = total if norm is None else norm
         spectra.append(s)
         floors.append(resolution_floor(s, "svd", max(s.size, 1) * src.shapes[i][1]))
-    return SweepResult(spectra, floors, norm, "qr-sweep", infidelity(eps) if track else None)
+    return SweepResult(spectra, floors, norm, "qr-sweep", infidelity(eps) if track else None,
+                       norm_exponent=removed)

@@ -23,6 +23,7 @@ weight dropped (rounding for an eigenstate) is returned.
 
 import numpy as np
 
+from .balance import balanced
 from .blocksweep import charge_groups, sector_pool
 from .chain import lq_step
 from .parallel import lanes
@@ -106,6 +107,9 @@ def labelled_chain(src, charges, store, tick):
         products is at most eps * n * this (relative), n the matrix size.
     totals : dict
         Weight of the state per total charge (keys), from the last site.
+    removed : int
+        The first cut's values are those of the state times 2^-removed: every
+        bond matrix is kept near unit size (:func:`.balance.balanced`).
 
     Notes
     -----
@@ -125,11 +129,13 @@ def labelled_chain(src, charges, store, tick):
     along a chain from successive factorisations; here each factorisation is
     split by the (exactly known) charge of the product basis.
     """
-    n = src.sites
+    n, name, site = src.sites, src.name, src.labels
     env = np.ones((1, 1), dtype=src.compute_dtype)
+    removed = 0
     with lanes():                   # the plain engine's threads per sweep (half, from 2 up)
         for i in range(n - 1, 0, -1):
-            env = lq_step(src.tensor(i), env)
+            env, e = balanced(lq_step(src.tensor(i), env), name, site[i])
+            removed += e
             store.put(f"L{i}", env)
             tick()
     r = np.ones((1, 1), dtype=src.compute_dtype)
@@ -140,6 +146,7 @@ def labelled_chain(src, charges, store, tick):
             cut, r, labels, lost, gauge = _label_step(pool, r, labels, src.tensor(i),
                                                       charges.sites[i],
                                                       store.pop(f"L{i + 1}"), charges)
+            r = balanced(r, name, site[i])[0]      # the cut's values came before: scale-free
             cuts.append(cut)
             gauges.append(gauge)
             dropped = max(dropped, lost)
@@ -153,4 +160,4 @@ def labelled_chain(src, charges, store, tick):
     for row, wt in zip(map(tuple, rows.tolist()), weights):
         totals[row] = totals.get(row, 0.0) + float(wt)
     tick()
-    return cuts, dropped, gauges, totals
+    return cuts, dropped, gauges, totals, removed

@@ -80,12 +80,14 @@ class SectorResult:
     route : str
     infidelity : None
         Truncation is not tracked by these routes.
+    norm_exponent : int
+        The state's norm is ``norm * 2**norm_exponent`` (the scale the sweeps removed).
     """
 
-    def __init__(self, sectors, floors, total_charge, leak, norm, route):
+    def __init__(self, sectors, floors, total_charge, leak, norm, route, norm_exponent=0):
         self.sectors, self.floors = sectors, floors
         self.total_charge, self.leak, self.norm, self.route = total_charge, leak, norm, route
-        self.infidelity = None
+        self.infidelity, self.norm_exponent = None, norm_exponent
         self.spectra = [np.sort(np.concatenate([v for _, v in cut]))[::-1] if cut
                         else np.zeros(1) for cut in sectors]
 
@@ -312,10 +314,11 @@ def chain_sectors(src, charges, *, scratch=None, leak_tol=None, tick=None, route
     budget, gauges = _store_budget(src), None
     if hasattr(src, "blocks"):
         with BondStore(scratch, budget) as store:
-            raw, first, last = block_chain(
+            raw, first, last, removed = block_chain(
                 ((i, src.blocks(i)) for i in range(n - 1, -1, -1)),
                 ((i, src.blocks(i)) for i in range(n)),
-                lambda: src.first_charge, lambda: src.last_charge, n, store, tick, dtype)
+                lambda: src.first_charge, lambda: src.last_charge, n, store, tick, dtype,
+                src.name, src.labels)
         route, leak = "block-sweep", 0.0
     else:
         try:
@@ -323,13 +326,15 @@ def chain_sectors(src, charges, *, scratch=None, leak_tol=None, tick=None, route
                 raise NotBlockStructured
             leftward, rightward, bonds = dense_blocks(src, charges)
             with BondStore(scratch, budget) as store:
-                raw, first, last = block_chain(
+                raw, first, last, removed = block_chain(
                     leftward, rightward, lambda: charges.key(bonds[0][0]),
-                    lambda: charges.key(bonds[n][0]), n, store, tick, dtype)
+                    lambda: charges.key(bonds[n][0]), n, store, tick, dtype,
+                    src.name, src.labels)
             route, leak = "block-sweep", 0.0
         except NotBlockStructured:
             with BondStore(scratch, budget) as store:
-                raw, dropped, gauges, totals = labelled_chain(src, charges, store, tick)
+                raw, dropped, gauges, totals, removed = labelled_chain(src, charges, store,
+                                                                        tick)
             total, outside = _refuse(src.name, totals, charges, tol)
             route, leak = "charge-sweep", outside + dropped
     if route == "block-sweep":
@@ -337,7 +342,7 @@ def chain_sectors(src, charges, *, scratch=None, leak_tol=None, tick=None, route
                for cut in raw]
         total = charges.key(charges.sub(last, first))
     cuts, norm = _normalised_cuts(raw, src.name)
-    result = SectorResult(cuts, [], total, leak, norm, route)
+    result = SectorResult(cuts, [], total, leak, norm, route, removed)
     eps = float(np.finfo(np.dtype(dtype)).eps)
     worst = max(gauges) if route == "charge-sweep" else 0.0
     result.floors = []
