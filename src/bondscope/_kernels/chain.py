@@ -192,7 +192,10 @@ def chain_spectra(src, *, bond_dim=None, weight_tol=None, scratch=None, tick=Non
     Schmidt values at cut i are the singular values of R_i L_i, so no canonical
     form is assumed and any gauge gives the same spectra.  Every factorisation
     is orthogonal, hence backward stable: values are resolved to about
-    eps * chi * lambda_max.
+    eps * chi * lambda_max.  After every step the new bond matrix is divided by
+    the power of two that brings its largest entry into [1/2, 1)
+    (:func:`.balance.balanced`, exact), so a chain whose products leave the
+    floating-point range is profiled as well; the exponents give the norm.
 
     Work per site: two products with a bond matrix, two QR factorisations and
     one values-only SVD of a chi x chi matrix; O(N d chi^3) in all.  Every
