@@ -13,6 +13,7 @@ Sub-commands, one per figure (docs/performance.md has the measured values)::
     python scripts/bench.py memory   [--sites 128] [--chi 512] [--limit-fraction 0.5]
     python scripts/bench.py state    [--qubits 22 24] [--dtype complex128] [--no-successive]
     python scripts/bench.py startup
+    python scripts/bench.py mutual   [--sites 16] [--chi 32] [--local-dim 2] [--only-first]
 
 ``mps``: ``bondscope.profile(path)`` against (a) the bare LAPACK calls it needs
 on the same shapes (one QR per site per sweep and one values-only SVD per bond,
@@ -25,6 +26,9 @@ leaves room for only a fraction of the file.
 ``state``: the gram route on all cuts against one values-only SVD of the
 middle cut and a successive-SVD sweep; peak memory and the pre-flight
 estimate over the state's size; the refusal of a state that will not fit.
+``mutual``: all-pairs mutual information against one profile of the same
+checkpoint, at (L, chi), (2L, chi) and (L, 2chi): the time ratios test the
+claimed O(N^2 chi^3) growth.
 ``startup``: ``bondscope --help`` and ``bondscope inspect`` import no scipy,
 numba, matplotlib or dask; their wall time against a bare ``import numpy``.
 """
@@ -84,22 +88,23 @@ def child(body, env=None, limit=None):
     return json.loads(proc.stdout.strip().splitlines()[-1])
 
 
-def write_mps(path, sites, chi, dtype, seed=0):
-    """A random non-canonical MPS, qubits, bonds min(2^i, 2^(N-i), chi), one dataset per site.
+def write_mps(path, sites, chi, dtype, seed=0, d=2):
+    """A random non-canonical MPS, local dimension d (qubits by default), bonds
+    min(d^i, d^(N-i), chi), one dataset per site.
 
     Entries have variance 1/(d chi_right), which keeps the norm near 1 on average.
     """
     import h5py
 
     rng = np.random.default_rng(seed)
-    bonds = [1] + [min(2**i, 2**(sites - i), chi) for i in range(1, sites)] + [1]
+    bonds = [1] + [min(d**i, d**(sites - i), chi) for i in range(1, sites)] + [1]
     with h5py.File(path, "w") as f:
         for i in range(sites):
-            shape = (bonds[i], 2, bonds[i + 1])
+            shape = (bonds[i], d, bonds[i + 1])
             t = rng.standard_normal(shape)
             if np.dtype(dtype).kind == "c":
                 t = (t + 1j * rng.standard_normal(shape)) / np.sqrt(2)
-            f.create_dataset(f"/psi/T{i}", data=(t / np.sqrt(2 * shape[2])).astype(dtype))
+            f.create_dataset(f"/psi/T{i}", data=(t / np.sqrt(d * shape[2])).astype(dtype))
     return bonds
 
 
@@ -330,6 +335,45 @@ def cmd_state(args):
                   f"in {refuse['seconds']:.2f} s")
 
 
+MUTUAL = """
+import warnings
+warnings.simplefilter("ignore")
+cpu = time.process_time()
+m = bondscope.mutual_information(PATH, reorder=False)
+extra = {"max_site_entropy": max(m.site_entropies), "cpu": time.process_time() - cpu}
+"""
+
+
+def cmd_mutual(args):
+    """All pairs against one profile of the same checkpoint, at (N, chi), (2N, chi), (N, 2chi)."""
+    sizes = [(args.sites, args.chi), (2 * args.sites, args.chi), (args.sites, 2 * args.chi)]
+    if args.only_first:
+        sizes = sizes[:1]
+    base = None
+    for sites, chi in sizes:
+        with tempfile.TemporaryDirectory(dir=args.dir) as tmp:
+            path = os.path.join(tmp, f"mutual-{sites}-{chi}.h5")
+            write_mps(path, sites, chi, "float64", d=args.local_dim)
+            size = os.path.getsize(path)
+            prof = child(_fill(PROFILE, PATH=path, OPTS={}))
+            mut = child(_fill(MUTUAL, PATH=path))
+        print(f"random MPS: L = {sites}, chi = {chi}, d = {args.local_dim}, "
+              f"file {size / 2**20:.1f} MiB")
+        print(_line("profile", prof, size=size))
+        print(_line("mutual (all pairs, no reordering)", mut, ref=prof, size=size))
+        if "seconds" not in mut:
+            continue
+        # on a shared machine the wall time includes waiting for a core; CPU time does not
+        print(f"  mutual CPU time {mut['extra']['cpu']:.2f} s "
+              f"({mut['extra']['cpu'] / mut['seconds']:.2f} cores on average)")
+        if base is None:
+            base = (sites, chi, mut["seconds"])
+        else:
+            n0, c0, t0 = base
+            print(f"  time / time at (L = {n0}, chi = {c0}) = {mut['seconds'] / t0:.2f}  "
+                  f"(claim O(N^2 chi^3): {(sites / n0) ** 2 * (chi / c0) ** 3:.0f})")
+
+
 def cmd_startup(args):
     import h5py
 
@@ -389,6 +433,12 @@ def main(argv=None):
     p.add_argument("--dtype", default="complex128", choices=("float64", "complex128"))
     p.add_argument("--no-successive", action="store_true",
                    help="skip the successive-SVD sweep (minutes at 2^24)")
+    p = sub.add_parser("mutual")
+    p.add_argument("--sites", type=int, default=16)
+    p.add_argument("--chi", type=int, default=32)
+    p.add_argument("--local-dim", type=int, default=2)
+    p.add_argument("--only-first", action="store_true",
+                   help="measure (sites, chi) only, not the doubled sizes")
     p = sub.add_parser("startup")
     p.add_argument("--repeat", type=int, default=5)
     args = parser.parse_args(argv)
@@ -396,8 +446,8 @@ def main(argv=None):
         BLAS_ENV.update({v: str(args.blas_threads) for v in
                          ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS")})
         print(f"BLAS threads in every child: {args.blas_threads}")
-    {"mps": cmd_mps, "memory": cmd_memory, "state": cmd_state, "startup": cmd_startup}[
-        args.cmd](args)
+    {"mps": cmd_mps, "memory": cmd_memory, "state": cmd_state, "startup": cmd_startup,
+     "mutual": cmd_mutual}[args.cmd](args)
 
 
 if __name__ == "__main__":

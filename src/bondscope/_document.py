@@ -262,8 +262,10 @@ def _validated(doc, where="profile"):
         if not isinstance(cut, dict) or "position" not in cut or "entropy" not in cut:
             raise CheckpointError(f"{where}: cut {i} needs at least 'position' and 'entropy'")
         pos = cut["position"]
-        if not isinstance(pos, int) or not 1 <= pos <= max(sites - 1, 1):
-            raise CheckpointError(f"{where}: cut {i} position {pos!r} is not in 1..{sites - 1}")
+        # a unit cell's last cut (position = sites) is the bond between cells
+        last = sites if doc["kind"] == "unit-cell" else max(sites - 1, 1)
+        if not isinstance(pos, int) or not 1 <= pos <= last:
+            raise CheckpointError(f"{where}: cut {i} position {pos!r} is not in 1..{last}")
         if not isinstance(cut["entropy"], (int, float)) or not math.isfinite(cut["entropy"]):
             raise CheckpointError(f"{where}: cut {i} entropy {cut['entropy']!r} is not a "
                                   "finite number")

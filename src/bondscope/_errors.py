@@ -1,7 +1,7 @@
 """Error types raised at bondscope's public boundary."""
 
-__all__ = ["CheckpointError", "MemoryLimitError", "EXIT_USAGE", "EXIT_CHECKPOINT", "EXIT_MEMORY",
-           "EXIT_FAILED", "EXIT_SOME_FAILED", "one_line"]
+__all__ = ["CheckpointError", "ConvergenceError", "MemoryLimitError", "EXIT_USAGE",
+           "EXIT_CHECKPOINT", "EXIT_MEMORY", "EXIT_FAILED", "EXIT_SOME_FAILED", "one_line"]
 
 EXIT_USAGE = 2
 EXIT_CHECKPOINT = 3
@@ -17,6 +17,10 @@ class CheckpointError(ValueError):
     The message names the file, dataset or site and says what was expected,
     what was found and, where there is one, how to fix it.
     """
+
+
+class ConvergenceError(CheckpointError):
+    """An iterative solver did not converge on a checkpoint's state (no number is reported)."""
 
 
 class MemoryLimitError(MemoryError):

@@ -24,8 +24,14 @@ __all__ = ["atomic_write", "remove_stale_parts", "STALE_SECONDS", "format_of", "
 
 H5_GROUP = "bondscope_profile"
 _COLUMNS = ("position", "bond_dimension", "schmidt_rank", "entropy", "resolution_floor",
-            "kept", "discarded_weight", "number_entropy", "configurational_entropy")
-_INT_COLUMNS = ("position", "bond_dimension", "schmidt_rank", "kept")
+            "kept", "discarded_weight", "number_entropy", "configurational_entropy",
+            # mixed states (docs/mixed.md)
+            "renyi2_left", "renyi2_right", "renyi2_error", "mutual_information_2",
+            "mutual_information_2_error", "disentangled_entropy", "disentangled_renyi2",
+            "disentangled_rank", "disentangled_resolution_floor", "disentangled_kept",
+            "disentangled_discarded_weight")
+_INT_COLUMNS = ("position", "bond_dimension", "schmidt_rank", "kept", "disentangled_rank",
+                "disentangled_kept")
 SUFFIXES = {".json": "json", ".h5": "h5", ".hdf5": "h5", ".csv": "csv"}
 
 

@@ -17,13 +17,13 @@ from numbers import Integral, Real
 __all__ = ["ProfileOptions", "LAYOUT", "BLOCK_LAYOUT", "MEASURES", "RESOURCES", "RUN_META",
            "option_label"]
 
-LAYOUT = ("state", "tensors", "local_dim", "axes", "complex_parts")
+LAYOUT = ("state", "tensors", "local_dim", "axes", "complex_parts", "unit_cell")
 # block-sparse checkpoints (bondscope._blocksparse)
 BLOCK_LAYOUT = ("blocks", "block_form", "charge_flow")
 MEASURES = ("renyi", "base", "spectrum", "bond_dim", "weight_tol", "route", "precision",
-            "charges", "modulus")
+            "charges", "modulus", "disentangle", "parity")
 # how a profile is computed, not what it holds (left out of a batch result's record)
-RESOURCES = ("scratch", "max_memory", "threads")
+RESOURCES = ("scratch", "max_memory", "threads", "transfer_iterations")
 # root attribute names of the run metadata (bondscope._runinfo); read afresh, not recorded
 RUN_META = ("time_attr", "bond_dim_attr", "weight_attr")
 ROUTES = ("auto", "gram", "svd")
@@ -69,6 +69,20 @@ def _spectrum(value):
     if value is True:
         return True
     return _integer(value, "spectrum", 1)
+
+
+def _parity(value):
+    if value is None:
+        return None
+    items = value.split(",") if isinstance(value, str) else list(value)
+    try:
+        bits = tuple(int(str(v).strip()) for v in items)
+    except ValueError:
+        bits = ()
+    if len(bits) < 2 or any(b not in (0, 1) for b in bits):
+        raise ValueError(f"{option_label('parity')} must list 0 or 1 for each local basis "
+                         f"state (at least two), e.g. 0,1 or 0,1,1,0; found {value!r}")
+    return bits
 
 
 @dataclasses.dataclass(frozen=True)
@@ -125,6 +139,20 @@ class ProfileOptions:
     time_attr, bond_dim_attr, weight_attr : str, optional
         Root attributes holding the run's time, bond dimension and discarded
         weight (default ``time``, ``bond_dim``, ``max_discarded_weight``).
+    disentangle : bool
+        Purifications: also the cut entropy after optimising ancilla unitaries
+        beside each cut (docs/mixed.md).
+    unit_cell : bool, optional
+        Read the site tensors as the unit cell of an infinite chain (True), never
+        (False), or when the bonds close into a cell with a bond other than 1
+        (None, default); see :mod:`bondscope._cellsource`.
+    transfer_iterations : int, optional
+        Unit cells: iteration limit of the transfer-matrix eigensolver
+        (default scipy's, 10 chi^2).
+    parity : str or sequence of int, optional
+        Fermion parity (0 or 1) of each local basis state, e.g. ``"0,1,1,0"``:
+        the sites are fermionic modes in Jordan-Wigner order (used by
+        :func:`bondscope.mutual_information`).  Kept as a tuple of ints.
 
     Raises
     ------
@@ -165,6 +193,10 @@ class ProfileOptions:
     time_attr: str = None
     bond_dim_attr: str = None
     weight_attr: str = None
+    disentangle: bool = False
+    unit_cell: bool = None
+    transfer_iterations: int = None
+    parity: tuple = None
 
     def __post_init__(self):
         from ._measure import renyi_orders
@@ -211,7 +243,17 @@ class ProfileOptions:
             put("max_memory", _integer(self.max_memory, "max_memory", 1))
         if self.threads is not None:
             put("threads", _integer(self.threads, "threads", 1))
+        if self.unit_cell not in (None, True, False):
+            raise ValueError(f"{option_label('unit_cell')} must be True, False or None, "
+                             f"found {self.unit_cell!r}")
+        if self.transfer_iterations is not None:
+            put("transfer_iterations", _integer(self.transfer_iterations,
+                                                "transfer_iterations", 1))
         self._check_charges(put)
+        if not isinstance(self.disentangle, bool):
+            raise ValueError(f"{option_label('disentangle')} must be True or False, found "
+                             f"{self.disentangle!r}")
+        put("parity", _parity(self.parity))
 
     def _check_charges(self, put):
         from ._blocksparse import FORMS
@@ -279,7 +321,7 @@ class ProfileOptions:
         """Every option as JSON-ready values."""
         out = dataclasses.asdict(self)
         out["renyi"] = list(self.renyi)
-        for name in ("local_dim", "axes", "modulus"):
+        for name in ("local_dim", "axes", "modulus", "parity"):
             if isinstance(out[name], tuple):
                 out[name] = list(out[name])
         return out
@@ -287,4 +329,7 @@ class ProfileOptions:
     def recorded(self):
         """The options that decide a profile's content (resources and run-metadata names
         left out), as JSON values."""
-        return {k: v for k, v in self.to_dict().items() if k not in (*RESOURCES, *RUN_META)}
+        # parity only matters to mutual information; left out when unset so that batch
+        # records written before it existed still match
+        return {k: v for k, v in self.to_dict().items()
+                if k not in (*RESOURCES, *RUN_META) and not (k == "parity" and v is None)}

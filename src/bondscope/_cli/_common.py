@@ -51,6 +51,15 @@ def _spectrum(text):
         raise UsageError(f"--spectrum {text!r}: expected a count K or 'all'") from None
 
 
+def _exponent(text):
+    if text in ("auto", "su2"):
+        return text
+    try:
+        return float(text)
+    except ValueError:
+        raise UsageError(f"--parity-exponent {text!r}: expected a number, su2 or auto") from None
+
+
 def _corrections(text):
     names = _words(text)
     return () if names == ["none"] else tuple(names)
@@ -69,11 +78,16 @@ FLAGS = {
         help="local dimension for a 1-D state vector: one integer or a comma list per site "
              "(default 2)")),
     "axes": ("layout", ("--axes",), dict(
-        metavar="ORDER", help="axis order of the site tensors, a permutation of left,phys,right")),
+        metavar="ORDER", help="axis order of the site tensors, a permutation of left,phys,right; "
+                             "mixed states: left,ket,bra,right or left,phys,ancilla,right")),
     "complex_parts": ("layout", ("--complex-parts",), dict(
         metavar="HOW", default="auto",
         help="state vector stored as real numbers with (re, im) in a last axis of length 2: "
              "auto (found from the shape, default), last-axis (force) or none")),
+    "unit_cell": ("layout", ("--unit-cell",), dict(
+        action="store_const", const=True, default=None,
+        help="read the site tensors as the unit cell of an infinite chain (detected without "
+             "this flag when the first left bond equals the last right bond and is not 1)")),
     # block-sparse checkpoints
     "blocks": ("layout", ("--blocks",), dict(
         metavar="PATTERN", help="block-sparse MPS: site groups, with a {site} placeholder, "
@@ -93,6 +107,10 @@ FLAGS = {
     "modulus": ("measures", ("--modulus",), dict(
         metavar="M", help="one per quantity: M >= 2 for a Z_M charge (parity: 2), 0 for an "
                           "integer charge")),
+    # fermionic modes (mutual information)
+    "parity": ("measures", ("--parity",), dict(
+        metavar="P", help="fermion parity 0/1 of each local basis state, e.g. 0,1 or 0,1,1,0: "
+                          "sites are fermionic modes in Jordan-Wigner order (docs/mutual.md)")),
     # measures
     "renyi": ("measures", ("--renyi",), dict(metavar="ALPHAS", type=_words, default=[],
                                              help="Renyi orders, e.g. 0.5,2,inf")),
@@ -113,6 +131,10 @@ FLAGS = {
     "precision": ("measures", ("--precision",), dict(
         default="promote", help="single-precision checkpoints: compute in double (promote, "
                                 "default) or as stored (half the memory, floors at float32 eps)")),
+    # mixed states
+    "disentangle": ("measures", ("--disentangle",), dict(
+        action="store_true", help="purifications: also the cut entropy after optimising "
+                                  "ancilla unitaries beside each cut (docs/mixed.md)")),
     # resources
     "max_memory": ("resources", ("--max-memory",), dict(
         metavar="SIZE", type=parse_size,
@@ -122,6 +144,9 @@ FLAGS = {
     "threads": ("resources", ("--threads",), dict(
         metavar="N", type=int,
         help="threads for linear algebra (default: BLAS environment or core count)")),
+    "transfer_iterations": ("resources", ("--transfer-iterations",), dict(
+        metavar="N", type=int,
+        help="unit cells: iteration limit of the transfer-matrix eigensolver (default 10 chi^2)")),
     "quiet": ("resources", ("--quiet",), dict(action="store_true",
                                               help="no progress bar or warnings")),
     # run metadata
@@ -145,15 +170,16 @@ FLAGS = {
         help="extra terms: parity, smooth, both (parity,smooth) or none (default: both for open "
              "chains, none for rings)")),
     "parity_exponent": ("fit", ("--parity-exponent",), dict(
-        metavar="K", type=float,
-        help="decay exponent of the alternating term (default 1, free fermions)")),
+        metavar="K", type=_exponent,
+        help="alternating term (-1)^l / x^K: a number K (1 for free fermions), su2 for the "
+             "SU(2) form sqrt(ln x)/x^(1/2), or auto (default: chosen by AICc)")),
 }
 
-LAYOUT_FLAGS = ("state", "tensors", "local_dim", "axes", "complex_parts", "blocks", "block_form",
-                "charge_flow")
+LAYOUT_FLAGS = ("state", "tensors", "local_dim", "axes", "complex_parts", "unit_cell",
+                "blocks", "block_form", "charge_flow")
 MEASURE_FLAGS = ("renyi", "base", "spectrum", "bond_dim", "weight_tol", "route", "precision",
-                 "charges", "modulus")
-RESOURCE_FLAGS = ("max_memory", "scratch", "threads", "quiet")
+                 "charges", "modulus", "disentangle")
+RESOURCE_FLAGS = ("max_memory", "scratch", "threads", "transfer_iterations", "quiet")
 FIT_FLAGS = ("boundary", "window", "corrections", "parity_exponent")
 RUN_FLAGS = ("time_attr", "bond_dim_attr", "weight_attr")
 _TITLES = {"layout": "checkpoint layout (auto-detected when omitted)", "measures": "measures",

@@ -58,7 +58,7 @@ def add_arguments(p):
     g.add_argument("--no-fit", action="store_true",
                    help="entropy: curves only, no central-charge fit or residual panel")
     add_flags(p, *FIT_FLAGS, *LAYOUT_FLAGS, *RUN_FLAGS, "renyi", "base", "charges", "modulus",
-              "quiet")
+              "disentangle", "parity", "quiet")
 
 
 def fit_choice(args):

@@ -14,7 +14,7 @@ import numpy as np
 
 from .._errors import CheckpointError
 
-__all__ = ["balanced", "balanced_blocks"]
+__all__ = ["SweepScales", "balanced", "balanced_blocks"]
 
 
 def _top(m):
@@ -72,3 +72,54 @@ def balanced_blocks(blocks, name, site):
         for b in blocks.values():
             _scale(b, e)
     return blocks, e
+
+
+class SweepScales:
+    """Exponents the two sweeps of an N-site chain removed from their bond matrices.
+
+    The left-to-right sweep balances R_{j+1} (made from site j) through
+    :meth:`left`, the right-to-left sweep L_j through :meth:`right`; each sweep
+    writes its own entries, so the two may run in different threads.
+    """
+
+    def __init__(self, sites, name, labels):
+        self.from_r = np.zeros(sites + 1, dtype=np.int64)      # removed from R_b
+        self.from_l = np.zeros(sites + 1, dtype=np.int64)      # removed from L_b
+        self._name, self._labels = name, labels
+
+    def left(self, j, m):
+        """R_{j+1} (an array, or sector blocks as a dict) balanced; its exponent kept."""
+        scale = balanced_blocks if isinstance(m, dict) else balanced
+        m, self.from_r[j + 1] = scale(m, self._name, self._labels[j])
+        return m
+
+    def right(self, j, m):
+        """L_j (an array, or sector blocks as a dict) balanced; its exponent kept."""
+        scale = balanced_blocks if isinstance(m, dict) else balanced
+        m, self.from_l[j] = scale(m, self._name, self._labels[j])
+        return m
+
+    def exponent(self, r_bond, l_bond):
+        """log2 of the scale removed from R_{r_bond} times L_{l_bond}, in all."""
+        return int(self.from_r[:r_bond + 1].sum() + self.from_l[l_bond:].sum())
+
+    def rescale(self, ledger, reference):
+        """Put a :class:`.conditioning.GaugeLedger` filled with the norms of balanced
+        matrices into the units of a state norm measured times 2^-``reference``.
+
+        Every bound the ledger sums is a product ||R_b|| ||L_b|| (or a site's norm
+        times its neighbours'), in the units 2^-(CR_b + CL_b) of bond b (CR, CL the
+        exponents removed from R_b, L_b in all).  Multiplying ||R_b|| by 2^x_b and
+        ||L_b|| by 2^z_b with x_b + z_b = CR_b + CL_b - reference, the difference
+        split evenly so that each stays near its product's size (the gauge's
+        conditioning), and each site's norms by the matching powers, brings every
+        product to the norm's units, exactly.
+        """
+        d = np.cumsum(self.from_r) + np.cumsum(self.from_l[::-1])[::-1] - reference
+        x = d // 2
+        z = d - x
+        j = np.arange(ledger.a_rows.size)
+        ledger.a_rows[:] = np.ldexp(ledger.a_rows, x[j + 1] - x[j] - self.from_r[j + 1])
+        ledger.a_cols[:] = np.ldexp(ledger.a_cols, z[j] - z[j + 1] - self.from_l[j])
+        ledger.r[:] = np.ldexp(ledger.r, x)
+        ledger.l[:] = np.ldexp(ledger.l, z)

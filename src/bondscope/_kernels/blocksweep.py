@@ -21,7 +21,7 @@ from contextlib import contextmanager
 
 import numpy as np
 
-from .balance import balanced_blocks
+from .conditioning import block_norms, bond_norm
 from .linalg import r_factor, svdvals
 from .parallel import blas_threads
 
@@ -232,7 +232,7 @@ def sector_pool():
             yield lambda f, items: list(ex.map(f, items))
 
 
-def block_chain(leftward, rightward, first, last, n, store, tick, dtype, name, labels):
+def block_chain(leftward, rightward, first, last, n, store, tick, dtype, ledger, scales):
     """Charge-resolved Schmidt values of every cut from block-wise sweeps.
 
     Parameters
@@ -250,8 +250,12 @@ def block_chain(leftward, rightward, first, last, n, store, tick, dtype, name, l
         Called once per site tensor processed.
     dtype : numpy dtype
         Compute dtype.
-    name, labels : str, list
-        The source's name and site labels, for messages.
+    ledger : GaugeLedger
+        Receives the norms of the blocks and bond matrices met
+        (:mod:`.conditioning`), from which the floors are bounded.
+    scales : SweepScales
+        Balances every bond matrix (all its sectors by one power of two) and
+        keeps the exponents (:mod:`.balance`).
 
     Returns
     -------
@@ -259,9 +263,6 @@ def block_chain(leftward, rightward, first, last, n, store, tick, dtype, name, l
         Per cut (position 1..N-1), the raw singular values of each sector,
         keyed by the bond charge (not yet relative to the left end).
     first_key, last_key : tuple
-    removed : int
-        The first cut's values are those of the state times 2^-removed: every
-        bond matrix is kept near unit size (:func:`.balance.balanced_blocks`).
 
     Notes
     -----
@@ -281,16 +282,14 @@ def block_chain(leftward, rightward, first, last, n, store, tick, dtype, name, l
     -- block-sparse tensors of symmetric tensor networks.
     """
     env_keys = [None] * (n + 1)
-    removed = 0
     with sector_pool() as pool:
         env = None
         for i, blocks in leftward:
             if env is None:
                 env = {last(): np.ones((1, 1), dtype=dtype)}
-            env, e = balanced_blocks(_run(pool, _lq_sector, _by_sector(blocks, env, left=True)),
-                                     name, labels[i])
+            env = scales.right(i, _run(pool, _lq_sector, _by_sector(blocks, env, left=True)))
+            ledger.right_norms(i, block_norms(blocks)[1], bond_norm(env))
             if i > 0:
-                removed += e
                 env_keys[i] = list(env)
                 for j, q in enumerate(env_keys[i]):
                     store.put(f"L{i}:{j}", env[q])
@@ -298,9 +297,8 @@ def block_chain(leftward, rightward, first, last, n, store, tick, dtype, name, l
         r = {first(): np.ones((1, 1), dtype=dtype)}
         cuts = []
         for i, blocks in rightward:
-            r, e = balanced_blocks(_run(pool, _qr_sector, _by_sector(blocks, r, left=False)),
-                                   name, labels[i])
-            removed += e if i == 0 else 0
+            r = scales.left(i, _run(pool, _qr_sector, _by_sector(blocks, r, left=False)))
+            ledger.left_norms(i, block_norms(blocks)[0], bond_norm(r))
             tick()
             if i == n - 1:
                 break
@@ -310,4 +308,4 @@ def block_chain(leftward, rightward, first, last, n, store, tick, dtype, name, l
                 if q in r:
                     met[q] = (r[q], e)
             cuts.append(sorted(_run(pool, _cut_values, met).items()))
-    return cuts, first(), last(), removed
+    return cuts, first(), last()

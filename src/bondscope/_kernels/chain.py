@@ -12,8 +12,9 @@ from concurrent.futures import ThreadPoolExecutor
 
 import numpy as np
 
-from .._measure import resolution_floor
-from .balance import balanced
+from .._source import source_eps
+from .balance import SweepScales, balanced
+from .conditioning import GaugeLedger, gauge_floors
 from .linalg import SweepResult, normalised, r_factor, svdvals
 from .parallel import dask_client, gathered, lanes, locked
 from .store import BondStore
@@ -58,20 +59,20 @@ def qr_step(r, a):
     return r_factor(out.reshape(c, d * k).T)
 
 
-def _sequential_chain(src, store, tick, values, bond_dim=None, weight_tol=None):
+def _sequential_chain(src, store, tick, values, ledger, scales, bond_dim=None,
+                      weight_tol=None):
     """Singular values of R_i L_i per cut, right-to-left sweep then left-to-right sweep.
 
     With ``bond_dim`` or ``weight_tol``, the left-to-right sweep also compresses
-    the state; returns (raw values per cut, discarded weights per cut, log2 of
-    the first cut's bond matrices' removed scale).
+    the state; returns (raw values per cut, discarded weights per cut).
     """
-    n, name, site = src.sites, src.name, src.labels
+    n = src.sites
     track = bond_dim is not None or weight_tol is not None
     env = np.ones((1, 1), dtype=src.compute_dtype)
-    removed = 0
     for i in range(n - 1, 0, -1):
-        env, e = balanced(lq_step(src.tensor(i), env), name, site[i])
-        removed += e
+        a = src.tensor(i)
+        env = scales.right(i, lq_step(a, env))
+        ledger.right(i, a, env)
         store.put(f"L{i}", env)
         tick()
     raw, eps = [], []
@@ -81,14 +82,14 @@ def _sequential_chain(src, store, tick, values, bond_dim=None, weight_tol=None):
         env = store.pop(f"L{i + 1}")
         if track:
             block = (w @ a.reshape(a.shape[0], -1)).reshape(-1, a.shape[2])
-            u, lost = truncation_step(block @ env, bond_dim, weight_tol)
-            w = balanced(u.conj().T @ block, name, site[i])[0]
-            eps.append(lost)
-        r, e = balanced(qr_step(r, a), name, site[i])
-        removed += e if i == 0 else 0
+            u, e = truncation_step(block @ env, bond_dim, weight_tol)
+            w = balanced(u.conj().T @ block, src.name, src.labels[i])[0]
+            eps.append(e)
+        r = scales.left(i, qr_step(r, a))
+        ledger.left(i, a, r)
         raw.append(values(r, env))
         tick()
-    return raw, eps, removed
+    return raw, eps
 
 
 class _Rendezvous:
@@ -117,19 +118,17 @@ def _until_failure(job, stop):
         raise
 
 
-def _concurrent_chain(src, store, tick, values):
+def _concurrent_chain(src, store, tick, values, ledger, scales):
     """The two sweeps of :func:`_sequential_chain` run side by side, one per thread.
 
     Neither sweep needs the other's results, so both start at once, the
     right-to-left one from the last site and the left-to-right one from the
     first.  Each cut's values are taken by whichever sweep reaches that cut
     second; the first one's bond matrix waits in the store.  Each thread does
-    one sweep and about half of the bond SVDs.  Returns (raw values per cut,
-    log2 of the first cut's bond matrices' removed scale).
+    one sweep and about half of the bond SVDs.
     """
-    n, name, site = src.sites, src.name, src.labels
+    n = src.sites
     raw = [None] * (n - 1)
-    removed = [0, 0]                    # by the leftward sweep (in all), the first R
     meet = _Rendezvous(store).meet
     stop = threading.Event()
     one = np.ones((1, 1), dtype=src.compute_dtype)
@@ -139,8 +138,9 @@ def _concurrent_chain(src, store, tick, values):
         for i in range(n - 1, 0, -1):
             if stop.is_set():
                 return
-            env, e = balanced(lq_step(src.tensor(i), env), name, site[i])
-            removed[0] += e
+            a = src.tensor(i)
+            env = scales.right(i, lq_step(a, env))
+            ledger.right(i, a, env)
             waiting = meet(i, "L", env)
             if waiting is not None:
                 raw[i - 1] = values(waiting, env)
@@ -151,8 +151,9 @@ def _concurrent_chain(src, store, tick, values):
         for i in range(n - 1):
             if stop.is_set():
                 return
-            r, e = balanced(qr_step(r, src.tensor(i)), name, site[i])
-            removed[1] += e if i == 0 else 0
+            a = src.tensor(i)
+            r = scales.left(i, qr_step(r, a))
+            ledger.left(i, a, r)
             waiting = meet(i + 1, "R", r)
             if waiting is not None:
                 raw[i] = values(r, waiting)
@@ -162,7 +163,7 @@ def _concurrent_chain(src, store, tick, values):
         other = pool.submit(_until_failure, leftward, stop)
         _until_failure(rightward, stop)
         other.result()
-    return raw, sum(removed)
+    return raw
 
 
 def chain_spectra(src, *, bond_dim=None, weight_tol=None, scratch=None, tick=None):
@@ -191,11 +192,17 @@ def chain_spectra(src, *, bond_dim=None, weight_tol=None, scratch=None, tick=Non
     QR factorisations gives R_i with psi = P_i R_i [...], P_i an isometry.  The
     Schmidt values at cut i are the singular values of R_i L_i, so no canonical
     form is assumed and any gauge gives the same spectra.  Every factorisation
-    is orthogonal, hence backward stable: values are resolved to about
-    eps * chi * lambda_max.  After every step the new bond matrix is divided by
-    the power of two that brings its largest entry into [1/2, 1)
-    (:func:`.balance.balanced`, exact), so a chain whose products leave the
-    floating-point range is profiled as well; the exponents give the norm.
+    is orthogonal, hence backward stable, so in a near-canonical gauge values
+    are resolved to about eps * chi * lambda_max; the products feeding them
+    are not, and a gauge G far from canonical makes their rounding grow as
+    eps cond(G)^2 at every cut.  The sweeps record the norms they multiply
+    (:class:`.conditioning.GaugeLedger`, O(d chi^2) per site) and each cut's
+    floor bounds that rounding too, at the coarser of the stored and compute
+    precisions; a ResolutionWarning says when it exceeds sqrt(eps).  After
+    every step the new bond matrix is divided by the power of two that brings
+    its largest entry into [1/2, 1) (:class:`.balance.SweepScales`, exact), so
+    a chain whose products leave the floating-point range is profiled as well;
+    the exponents give the norm and the ledger's units.
 
     Work per site: two products with a bond matrix, two QR factorisations and
     one values-only SVD of a chi x chi matrix; O(N d chi^3) in all.  Every
@@ -229,18 +236,22 @@ def chain_spectra(src, *, bond_dim=None, weight_tol=None, scratch=None, tick=Non
     track = bond_dim is not None or weight_tol is not None
     tick = locked(tick)
     values = _bond_values(dask_client())
+    ledger, scales = GaugeLedger(src.sites), SweepScales(src.sites, src.name, src.labels)
     with BondStore(scratch) as store, lanes() as count:
         if track or count < 2:
-            raw, eps, removed = _sequential_chain(src, store, tick, values, bond_dim,
-                                                  weight_tol)
+            raw, eps = _sequential_chain(src, store, tick, values, ledger, scales, bond_dim,
+                                         weight_tol)
         else:
-            (raw, removed), eps = _concurrent_chain(src, store, tick, values), []
+            raw, eps = _concurrent_chain(src, store, tick, values, ledger, scales), []
+    removed = scales.exponent(1, 1)             # the first cut's values: R_1 L_1
+    scales.rescale(ledger, removed)
     raw = gathered(raw)
-    spectra, floors, norm = [], [], None
-    for i, s in enumerate(raw):
+    spectra, norm = [], None
+    for s in raw:
         s, total = normalised(s, src.name)
         norm = total if norm is None else norm
         spectra.append(s)
-        floors.append(resolution_floor(s, "svd", max(s.size, 1) * src.shapes[i][1]))
+    sizes = [max(s.size, 1) * src.shapes[i][1] for i, s in enumerate(spectra)]
+    floors = gauge_floors(spectra, sizes, ledger.factors(norm), source_eps(src), src.name)
     return SweepResult(spectra, floors, norm, "qr-sweep", infidelity(eps) if track else None,
                        norm_exponent=removed)
