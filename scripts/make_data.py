@@ -5,7 +5,7 @@ Regenerate everything that is committed (about 15 seconds)::
     python scripts/make_data.py
 
 Parts can be written alone with ``--only demo``, ``--only series``,
-``--only fixtures`` or ``--only charges``. Large checkpoints (not committed) are written on
+``--only fixtures``, ``--only charges`` or ``--only mixed``. Large checkpoints (not committed) are written on
 demand::
 
     python scripts/make_data.py --large out/large            # L = 100, 200, 500
@@ -32,6 +32,14 @@ data/charges/{blocks,packed,labelled,dense}.h5
     in each block-sparse form bondscope reads and once dense; profile any of
     them with ``bondscope profile FILE`` (the block-sparse ones carry their
     local charges) or ``--charges 0,1``.
+data/mixed/{thermal_mpo,thermal_purified}.h5
+    Run "KP-0861" of the same fictional group: the open 6-site Heisenberg chain
+    at inverse temperature beta = 2, exp(-beta H)/Z by exact diagonalisation,
+    stored as its exact density-matrix MPO (``/rho/site_{n}``, axes
+    (left, ket, bra, right), group attribute ``kind = "density-matrix"``) and as
+    the purification with rho^(1/2) as amplitudes (``/purified/site_{n}``,
+    attribute ``axes = "left,phys,ancilla,right"``); ``bondscope profile FILE``
+    finds the form (docs/mixed.md).
 tests/fixtures/*.h5
     Tiny files in several layouts, listed in `FIXTURES`. All but the AKLT file
     hold the exact ground state of the open 6-site critical Ising chain (exact
@@ -254,10 +262,30 @@ def make_fixtures(fixture_dir):
           note="AKLT valence-bond solid with edge spins: ln 2 at every cut")
 
 
+def make_mixed(data_dir):
+    from reference import mixed
+
+    L, beta = 6, 2.0
+    rho = mixed.thermal(spin.xxz(L, 1.0), beta)
+    forms = (("thermal_mpo.h5", "rho", mixed.mpo_from_dense, {"kind": "density-matrix"}),
+             ("thermal_purified.h5", "purified", mixed.purification_from_dense,
+              {"axes": "left,phys,ancilla,right"}))
+    (data_dir / "mixed").mkdir(parents=True, exist_ok=True)
+    for name, group, build, attrs in forms:
+        with _new_file(data_dir / "mixed" / name) as f:
+            f.attrs["run_id"] = "KP-0861"
+            f.attrs["beta"] = beta
+            g = f.create_group(group)
+            for key, value in attrs.items():
+                g.attrs[key] = value
+            for i, t in enumerate(build(rho, [2] * L)):
+                _dataset(g, f"site_{i}", t)
+
+
 def main(argv=None):
     """Command line: see the module docstring."""
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--only", choices=("demo", "series", "fixtures", "charges"))
+    parser.add_argument("--only", choices=("demo", "series", "fixtures", "charges", "mixed"))
     parser.add_argument("--large", metavar="DIR", help="write large checkpoints to DIR")
     parser.add_argument("--sizes", type=int, nargs="+", default=list(LARGE_SIZES),
                         help="chain lengths for --large")
@@ -277,6 +305,8 @@ def main(argv=None):
         import blockdata
 
         blockdata.example_files(data_dir / "charges", run="KP-0733")
+    if args.only in (None, "mixed"):
+        make_mixed(data_dir)
 
 
 if __name__ == "__main__":

@@ -67,7 +67,7 @@ BAD = [
     ({"version": 99}, "version 99 is not supported"),
     ({"log_base": "ten"}, "log_base 'ten'"),
     ({"log_base": 1}, "log_base must be a finite number > 1"),
-    ({"sites": 0}, "sites must be a positive integer"),
+    ({"sites": 0}, "sites must be an integer in 1..10000000"),
     ({"cuts": [{"position": 9, "entropy": 0.1}]}, "position 9 is not in 1..3"),
     ({"cuts": [{"position": 1}]}, "needs at least 'position' and 'entropy'"),
     ({"cuts": "none"}, "cuts must be a list"),

@@ -429,9 +429,12 @@ def test_gauge_invariance(make, complex_gauge, extra):
     tol = 1e3 * cond**2 * EPS
     np.testing.assert_allclose(got.entropies, ref.entropies, atol=tol)
     np.testing.assert_allclose(got.renyi("2"), ref.renyi("2"), atol=tol)
-    assert list(got.schmidt_ranks) == list(ref.schmidt_ranks)
-    for a, b in zip(got.spectra, ref.spectra):
-        np.testing.assert_allclose(a[: len(b)], b, atol=tol)
+    # the gauge raises the floor (tests/test_floors.py), so it may resolve fewer values,
+    # never more, and those it resolves agree
+    assert np.all(got.schmidt_ranks <= ref.schmidt_ranks)
+    for a, b, floor in zip(got.spectra, ref.spectra, got.column("resolution_floor")):
+        np.testing.assert_allclose(a, b[: len(a)], atol=tol)
+        assert np.all(b[len(a):] <= floor)
     assert list(got.bond_dimensions) == [b + extra for b in ref.bond_dimensions]
 
 

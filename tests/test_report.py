@@ -111,7 +111,7 @@ def test_checkpoints_gone_converges_against_bond(batch, tmp_path):
     out = Path(shutil.copytree(batch[0], tmp_path / "out"))
     summary = json.loads((out / "summary.json").read_text())
     for row in summary["rows"]:
-        row["source"] = "/elsewhere/" + Path(row["source"]).name
+        row["source"] = row["checkpoint"] = "/elsewhere/" + Path(row["source"]).name
     (out / "summary.json").write_text(json.dumps(summary))
     text = report_html(out)
     assert "against the inverse bond dimension" in text

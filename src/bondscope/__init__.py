@@ -7,7 +7,8 @@ The stages, in the order data flows through them::
 
 Profiling
 ---------
-profile          -- Profile of a checkpoint path, a state vector or a list of site tensors
+profile          -- Profile of a checkpoint path, a state vector, a list of site tensors
+                    or a unit cell of an infinite chain (unit_cell=, --unit-cell)
 ProfileOptions   -- every profiling option (layout, measures, resources), validated once
 inspect          -- what a checkpoint holds and what profiling it will cost, without spectra
 open_source      -- the validated source (chain of site tensors, or amplitudes) of a checkpoint
@@ -27,6 +28,8 @@ spectrum_figure    -- entanglement spectrum levels -ln lambda^2 at every cut
 budget_figure      -- bond dimension needed per cut for target errors
 heatmap_figure     -- S(l, t) over a time series of checkpoints
 convergence_figure -- middle-cut entropy against discarded weight or 1/chi, extrapolated
+mixed_figure       -- mixed states: physical S_2 and I_2 beside the stored form's cut entropy
+cellscaling_figure -- unit cells: entropy against ln xi with the central-charge fit
 mutual_figure      -- mutual-information matrix, I(r) with its fit, one-site entropies
 ordering_figure    -- entanglement profile before and after the suggested site ordering
 write_report       -- one self-contained HTML page for a batch results directory
@@ -38,6 +41,7 @@ bond_budget          -- smallest bond dimension per cut for an error target, and
 compare_profiles     -- per-cut differences, convergence and extrapolation over runs
 spectrum_diagnostics -- entanglement gap and degeneracy pattern per cut
 charge_equipartition -- sector entropies S(q) of a critical chain against equipartition
+fit_cell_scaling     -- unit cells at growing bond dimension: central charge and kappa
 mutual_information   -- one-site entropies, mutual-information matrix, decay, site ordering
 MutualInformation    -- the mutual-information document (site_entropies, suggested_order, ...)
 load_mutual          -- read a saved mutual-information document (.json)
@@ -46,7 +50,9 @@ Errors
 ------
 CheckpointError  -- a checkpoint or profile that cannot be read as it stands
 MemoryLimitError -- work refused by the pre-flight memory estimate
+ConvergenceError -- an iterative eigensolver did not converge (a CheckpointError)
 UnnormalisedStateWarning -- the stored state was not normalised (it is profiled normalised)
+ResolutionWarning -- Schmidt values resolved far worse than the precision (ill-conditioned gauge)
 
 Heavy dependencies (scipy, matplotlib, dask) are imported only when a
 function that needs them runs.
@@ -54,7 +60,7 @@ function that needs them runs.
 
 from importlib import import_module
 
-from ._errors import CheckpointError, MemoryLimitError
+from ._errors import CheckpointError, ConvergenceError, MemoryLimitError
 
 __version__ = "0.1.0"
 
@@ -67,6 +73,7 @@ _LAZY = {
     "load_profile": "bondscope._document",
     "entropy_measures": "bondscope._measure",
     "UnnormalisedStateWarning": "bondscope._pipeline",
+    "ResolutionWarning": "bondscope._measure",
     "run_batch": "bondscope._batch.run",
     "plot": "bondscope._figures._kinds",
     "entropy_figure": "bondscope._figures.entropy",
@@ -74,12 +81,15 @@ _LAZY = {
     "budget_figure": "bondscope._figures.budget",
     "heatmap_figure": "bondscope._figures.heatmap",
     "convergence_figure": "bondscope._figures.convergence",
+    "mixed_figure": "bondscope._figures.mixed",
     "write_report": "bondscope._report",
     "fit_scaling": "bondscope._analyses.scaling",
     "bond_budget": "bondscope._analyses.budget",
     "compare_profiles": "bondscope._analyses.comparison",
     "spectrum_diagnostics": "bondscope._analyses.diagnostics",
     "charge_equipartition": "bondscope._analyses.equipartition",
+    "fit_cell_scaling": "bondscope._analyses.cellscaling",
+    "cellscaling_figure": "bondscope._figures.cellscaling",
     "mutual_information": "bondscope._analyses.mutual",
     "MutualInformation": "bondscope._analyses.mutual",
     "load_mutual": "bondscope._analyses.mutual",
@@ -87,7 +97,7 @@ _LAZY = {
     "ordering_figure": "bondscope._figures.ordering",
 }
 
-__all__ = ["CheckpointError", "MemoryLimitError", "__version__", *_LAZY]
+__all__ = ["CheckpointError", "ConvergenceError", "MemoryLimitError", "__version__", *_LAZY]
 
 
 def __getattr__(name):

@@ -6,7 +6,8 @@ from pathlib import Path
 
 import numpy as np
 
-from ._errors import CheckpointError
+from ._errors import CheckpointError, one_line
+from ._linked import refuse_missing_sources
 from ._readcost import read_buffer_bytes
 from ._source import AmplitudeSource, ChainSource, numeric_dtype, resolve_axes, split_local_dims
 from ._vectorshape import pairs_as_complex, power_hint, vector_shape
@@ -29,8 +30,9 @@ class Candidate:
 
     @property
     def flag(self):
-        return f"--state {self.spec}" if self.kind == "state-vector" else \
-            f"--tensors '{self.spec}'"
+        if self.kind == "state-vector":
+            return f"--state {self.spec}"
+        return f"--tensors '{self.spec}'" + (" --unit-cell" if self.kind == "unit-cell" else "")
 
 
 def _open(path):
@@ -56,7 +58,7 @@ def _open(path):
     try:
         return h5py.File(path, "r")
     except OSError as exc:
-        reason = " ".join(str(exc).split())
+        reason = one_line(exc)
         hint = " - the file looks truncated (an interrupted copy or write?)" \
             if "truncated" in reason or "eof" in reason.lower() else ""
         raise CheckpointError(f"{path}: not a readable HDF5 file ({reason}){hint}") from None
@@ -123,14 +125,14 @@ def _datasets(f):
     try:
         f.visititems(visit)
     except (OSError, RuntimeError, KeyError) as exc:
-        raise unreadable_structure(f, exc) from None
+        raise unreadable_structure(f.filename, exc) from None
     return found
 
 
-def unreadable_structure(f, exc):
+def unreadable_structure(path, exc):
     """CheckpointError for groups or links HDF5 could not walk (a file rewritten while read)."""
-    return CheckpointError(f"{f.filename}: the file's groups could not be read "
-                           f"({' '.join(str(exc).split())}); if another program is writing it, "
+    return CheckpointError(f"{path}: the file's groups could not be read "
+                           f"({one_line(exc)}); if another program is writing it, "
                            "retry when it has finished, otherwise the file is damaged")
 
 
@@ -170,20 +172,38 @@ def _numbering_problem(numbers, pattern):
     return None
 
 
-def _chain_candidate(f, pattern, hits, axes):
+def _chain_candidate(f, pattern, hits, axes, unit_cell=None):
     numbers = list(hits)
     problem = _numbering_problem(numbers, pattern)
     cand = Candidate("mps", pattern, [hits[n] for n in numbers], numbers, problem)
     if problem is None:
         try:
             shapes = [f[p].shape for p in cand.datasets]
-            cand.axes = resolve_axes(shapes, numbers, axes, where=f"{f.filename}: {pattern}")
+            where = f"{f.filename}: {pattern}"
+            from ._mixed import is_mixed_family, kind_of, mixed_axes, stored_hint
+
+            if is_mixed_family(shapes):
+                cand.axes = mixed_axes(shapes, numbers, axes, stored_hint(f[cand.datasets[0]]),
+                                       where=where)
+                cand.kind = kind_of(cand.axes)
+                return cand
         except CheckpointError as exc:
             cand.problem = str(exc)
+            return cand
+        if unit_cell is not True:
+            try:
+                cand.axes = resolve_axes(shapes, numbers, axes, where=where)
+                return cand
+            except CheckpointError as exc:
+                cand.problem = str(exc)
+        if unit_cell is not False:
+            from ._cellsource import cell_candidate
+
+            cell_candidate(cand, shapes, numbers, axes, where, unit_cell)
     return cand
 
 
-def scan(f, local_dim=None, axes=None, complex_parts="auto"):
+def scan(f, local_dim=None, axes=None, complex_parts="auto", unit_cell=None):
     """All plausible layouts in an open file, from metadata alone.
 
     Parameters
@@ -207,7 +227,7 @@ def scan(f, local_dim=None, axes=None, complex_parts="auto"):
     patterns, oversized = {}, {}
     for p in paths:
         shape = f[p].shape
-        if len(shape) not in (2, 3) or _column(shape):
+        if len(shape) not in (2, 3, 4) or _column(shape):
             continue
         for m in _NUMBER.finditer(p):
             pat = p[:m.start()] + "{site}" + p[m.end():]
@@ -218,9 +238,9 @@ def scan(f, local_dim=None, axes=None, complex_parts="auto"):
                 patterns.setdefault(pat, {})[number] = p
     found, broken, members = [], [], set()
     for pat, hits in patterns.items():
-        if len(hits) + (pat in oversized) < 2:
+        if len(hits) + (pat in oversized) < 2 and not _single_cell(f, hits):
             continue
-        cand = _chain_candidate(f, pat, dict(sorted(hits.items())), axes)
+        cand = _chain_candidate(f, pat, dict(sorted(hits.items())), axes, unit_cell)
         if pat in oversized:
             name, digits = oversized[pat]
             cand.problem = (f"{f.filename}: dataset {_short(name)} of {pat} has a site "
@@ -233,6 +253,13 @@ def scan(f, local_dim=None, axes=None, complex_parts="auto"):
             if cand is not None:
                 (broken if cand.problem else found).append(cand)
     return found, broken
+
+
+def _single_cell(f, hits):
+    """A one-site family is a candidate only as a unit cell (see _cellsource)."""
+    from ._cellsource import looks_like_cell
+
+    return any(looks_like_cell([f[p].shape]) for p in hits.values())
 
 
 def _column(shape):
@@ -270,7 +297,7 @@ def _describe(cands):
 
 
 def open_source(path, *, state=None, tensors=None, local_dim=None, axes=None,
-                complex_parts="auto", precision="promote"):
+                complex_parts="auto", precision="promote", unit_cell=None):
     """Open a checkpoint read-only and return its validated source.
 
     Parameters
@@ -288,16 +315,23 @@ def open_source(path, *, state=None, tensors=None, local_dim=None, axes=None,
     axes : str or tuple, optional
         Stored axis order of the site tensors, a permutation of left,phys,right.
         Inferred from how the bonds chain when omitted; honoured by detection.
+        Rank-4 tensors: a permutation of left,ket,bra,right (density matrix) or
+        left,phys,ancilla,right (purification), or found from stored
+        attributes (:mod:`bondscope._mixed`).
     complex_parts : {"auto", "last-axis", "none"}
         Real and imaginary parts of a state vector in a last axis of length 2:
         found from the shape (a real (D, 2) array with D > 16), forced, or never
         (see :func:`bondscope._vectorshape.vector_shape`).
     precision : {"promote", "stored"}
         Profile single-precision data in double precision (default) or as stored.
+    unit_cell : bool, optional
+        True: read the tensor family as the unit cell of an infinite chain;
+        False: never; None (default): a family that is not an open chain is
+        a cell when its first left bond equals its last right bond and is not 1.
 
     Returns
     -------
-    ChainSource or AmplitudeSource
+    ChainSource, MixedSource, CellSource or AmplitudeSource
         Holds the file open; call ``close()`` (or use it as a context manager).
         ``read_buffer`` is the most memory HDF5 and the (re, im) combination
         need besides one returned array (see :mod:`bondscope._readcost`).
@@ -325,10 +359,12 @@ def open_source(path, *, state=None, tensors=None, local_dim=None, axes=None,
                    complex_parts=complex_parts, precision=precision)
     f = _open(path)
     try:
-        src = _pick(f, Path(path), state, tensors, local_dim, axes, complex_parts, precision)
+        refuse_missing_sources(f, path)
+        src = _pick(f, Path(path), state, tensors, local_dim, axes, complex_parts, precision,
+                    unit_cell)
     except (OSError, RuntimeError, KeyError) as exc:      # h5py's errors for a changing file
         f.close()
-        raise unreadable_structure(f, exc) from None
+        raise unreadable_structure(path, exc) from None
     except BaseException:
         f.close()
         raise
@@ -336,18 +372,18 @@ def open_source(path, *, state=None, tensors=None, local_dim=None, axes=None,
     return src
 
 
-def _pick(f, path, state, tensors, local_dim, axes, parts, precision):
+def _pick(f, path, state, tensors, local_dim, axes, parts, precision, unit_cell=None):
     if state is not None:
         name = state if state.startswith("/") else "/" + state
         return _state_source(f, path, name, local_dim, parts, precision)
     if tensors is not None:
         hits = _family(f, tensors)
-        cand = _chain_candidate(f, tensors, hits, axes)
+        cand = _chain_candidate(f, tensors, hits, axes, unit_cell)
         if cand.problem:
             raise CheckpointError(cand.problem if cand.problem.startswith(str(f.filename))
                                   else f"{path}: {cand.problem}")
         return _chain_source(f, path, cand, precision)
-    cands, broken = scan(f, local_dim, axes, parts)
+    cands, broken = scan(f, local_dim, axes, parts, unit_cell)
     if not cands and broken:
         problem = broken[0].problem
         raise CheckpointError(f"{problem}; or name another layout with --state / --tensors"
@@ -408,8 +444,17 @@ def _chain_source(f, path, cand, precision):
     dtypes = [_stored_dtype(d, f"{path}:{d.name}") for d in dsets]
     dtype = np.result_type(*dtypes)
     readers = [_reader(d, t) for d, t in zip(dsets, dtypes)]
-    src = ChainSource([d.shape for d in dsets], dtype, lambda i: readers[i](), cand.labels,
-                      cand.axes, f"{path}:{cand.spec}", precision)
+    if cand.kind == "unit-cell":
+        from ._cellsource import CellSource
+
+        src = CellSource([d.shape for d in dsets], dtype, lambda i: readers[i](), cand.labels,
+                         cand.axes, f"{path}:{cand.spec}", precision, cand.detection)
+    else:
+        kind = ChainSource
+        if len(cand.axes) == 4:
+            from ._mixed import MixedSource as kind
+        src = kind([d.shape for d in dsets], dtype, lambda i: readers[i](), cand.labels,
+                   cand.axes, f"{path}:{cand.spec}", precision)
     src.read_buffer = max(read_buffer_bytes(d) + (d.size * t.itemsize // 2 if d.dtype.names
                                                   else 0) for d, t in zip(dsets, dtypes))
     return src

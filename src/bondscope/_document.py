@@ -22,6 +22,8 @@ __all__ = ["FORMAT", "VERSION", "Profile", "load_profile", "is_saved_profile", "
 
 FORMAT = "bondscope-profile"
 VERSION = 1
+# longer chains are refused as a corrupt field: analyses allocate per site
+MAX_SITES = 10**7
 
 
 def parse_log_base(value):
@@ -245,8 +247,14 @@ def _validated(doc, where="profile"):
     except (TypeError, ValueError) as exc:
         raise CheckpointError(f"{where}: {exc}") from None
     sites = doc["sites"]
-    if not isinstance(sites, int) or sites < 1:
-        raise CheckpointError(f"{where}: sites must be a positive integer, found {sites!r}")
+    if isinstance(sites, bool) or not isinstance(sites, int) or not 1 <= sites <= MAX_SITES:
+        raise CheckpointError(f"{where}: sites must be an integer in 1..{MAX_SITES}, found "
+                              f"{_short(sites)}")
+    dims = doc.get("local_dims")
+    if dims is not None and (not isinstance(dims, list) or len(dims) != sites or not all(
+            isinstance(d, int) and not isinstance(d, bool) and d >= 1 for d in dims)):
+        raise CheckpointError(f"{where}: local_dims must be {sites} integers >= 1 (one per "
+                              f"site), found {_short(dims)}")
     cuts = doc["cuts"]
     if not isinstance(cuts, list):
         raise CheckpointError(f"{where}: cuts must be a list, found {type(cuts).__name__}")
@@ -254,12 +262,19 @@ def _validated(doc, where="profile"):
         if not isinstance(cut, dict) or "position" not in cut or "entropy" not in cut:
             raise CheckpointError(f"{where}: cut {i} needs at least 'position' and 'entropy'")
         pos = cut["position"]
-        if not isinstance(pos, int) or not 1 <= pos <= max(sites - 1, 1):
-            raise CheckpointError(f"{where}: cut {i} position {pos!r} is not in 1..{sites - 1}")
+        # a unit cell's last cut (position = sites) is the bond between cells
+        last = sites if doc["kind"] == "unit-cell" else max(sites - 1, 1)
+        if not isinstance(pos, int) or not 1 <= pos <= last:
+            raise CheckpointError(f"{where}: cut {i} position {pos!r} is not in 1..{last}")
         if not isinstance(cut["entropy"], (int, float)) or not math.isfinite(cut["entropy"]):
             raise CheckpointError(f"{where}: cut {i} entropy {cut['entropy']!r} is not a "
                                   "finite number")
     return doc
+
+
+def _short(value, limit=60):
+    text = repr(value)
+    return text if len(text) <= limit else text[:limit] + "..."
 
 
 def is_saved_profile(path):

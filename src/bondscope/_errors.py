@@ -1,12 +1,14 @@
 """Error types raised at bondscope's public boundary."""
 
-__all__ = ["CheckpointError", "MemoryLimitError", "EXIT_USAGE", "EXIT_CHECKPOINT", "EXIT_MEMORY",
-           "EXIT_FAILED", "one_line"]
+__all__ = ["CheckpointError", "ConvergenceError", "MemoryLimitError", "EXIT_USAGE",
+           "EXIT_CHECKPOINT", "EXIT_MEMORY", "EXIT_FAILED", "EXIT_SOME_FAILED", "one_line"]
 
 EXIT_USAGE = 2
 EXIT_CHECKPOINT = 3
 EXIT_MEMORY = 4
 EXIT_FAILED = 1
+# batch: it ran, and some checkpoints failed (their count is in the summary)
+EXIT_SOME_FAILED = 5
 
 
 class CheckpointError(ValueError):
@@ -15,6 +17,10 @@ class CheckpointError(ValueError):
     The message names the file, dataset or site and says what was expected,
     what was found and, where there is one, how to fix it.
     """
+
+
+class ConvergenceError(CheckpointError):
+    """An iterative solver did not converge on a checkpoint's state (no number is reported)."""
 
 
 class MemoryLimitError(MemoryError):

@@ -115,7 +115,7 @@ def _flop_rate():
     return _RATE[0]
 
 
-def estimate(src, route=None, truncating=False, charges=False):
+def estimate(src, route=None, truncating=False, charges=False, disentangle=False):
     """Memory and work of profiling ``src`` (a ChainSource or AmplitudeSource).
 
     With ``charges`` (or a block-sparse source) the charge-resolved routes'
@@ -132,6 +132,9 @@ def estimate(src, route=None, truncating=False, charges=False):
     store (at most its budget, ``_kernels.store.STORE_BYTES``); truncation tracking adds
     two tensor-sized blocks.
     Work sums d chi_l chi_r (chi_l + chi_r) per site and chi^3 per bond SVD.
+    Density matrices and purifications: the MPS sweep over the merged middle
+    axes plus :func:`bondscope._kernels.mixed.mixed_cost` (the Rényi-2
+    environments and, with ``disentangle``, the per-cut optimisation).
     State vectors: the larger of the read (the amplitudes, plus the stored
     array while it is converted) and the computation.  gram holds the state,
     the middle reduced density matrix while it is diagonalised, and the next
@@ -156,7 +159,12 @@ def estimate(src, route=None, truncating=False, charges=False):
 
         memory, flops, detail = block_estimate(src)
         return Estimate(memory, flops * cplx, detail)
-    if src.kind == "mps":
+    if src.kind == "unit-cell":
+        from ._kernels.cell import cell_estimate
+
+        memory, flops, detail = cell_estimate(src)
+        return Estimate(memory, flops * cplx, detail)
+    if src.kind != "state-vector":
         shapes = src.shapes
         tensor = max(prod(s) for s in shapes) * item
         raw = max(prod(s) for s in shapes) * stored
@@ -175,6 +183,12 @@ def estimate(src, route=None, truncating=False, charges=False):
         memory += 2 * buffer            # one read in flight per sweep
         detail = {"largest_tensor_bytes": tensor, "bond_matrix_bytes": bond,
                   "read_buffer_bytes": buffer}
+        if src.kind != "mps":
+            from ._kernels.mixed import mixed_cost
+
+            more, work, extra = mixed_cost(src, disentangle)
+            memory, flops = max(memory, more + 2 * tensor + 2 * buffer), flops + work
+            detail.update(extra)
     else:
         dims = src.local_dims
         total = prod(dims)

@@ -14,16 +14,18 @@ import math
 import os
 from numbers import Integral, Real
 
-__all__ = ["ProfileOptions", "LAYOUT", "BLOCK_LAYOUT", "MEASURES", "RESOURCES",
+__all__ = ["ProfileOptions", "LAYOUT", "BLOCK_LAYOUT", "MEASURES", "RESOURCES", "RUN_META",
            "option_label"]
 
-LAYOUT = ("state", "tensors", "local_dim", "axes", "complex_parts")
+LAYOUT = ("state", "tensors", "local_dim", "axes", "complex_parts", "unit_cell")
 # block-sparse checkpoints (bondscope._blocksparse)
 BLOCK_LAYOUT = ("blocks", "block_form", "charge_flow")
 MEASURES = ("renyi", "base", "spectrum", "bond_dim", "weight_tol", "route", "precision",
-            "charges", "modulus", "parity")
+            "charges", "modulus", "disentangle", "parity")
 # how a profile is computed, not what it holds (left out of a batch result's record)
-RESOURCES = ("scratch", "max_memory", "threads")
+RESOURCES = ("scratch", "max_memory", "threads", "transfer_iterations")
+# root attribute names of the run metadata (bondscope._runinfo); read afresh, not recorded
+RUN_META = ("time_attr", "bond_dim_attr", "weight_attr")
 ROUTES = ("auto", "gram", "svd")
 PRECISIONS = ("promote", "stored")
 
@@ -134,6 +136,19 @@ class ProfileOptions:
         Block-sparse form (found from the groups' members when omitted).
     charge_flow : {"rightward", "leftward"}
         Block conservation rule: q_right = q_left + q_phys, or q_left = q_right + q_phys.
+    time_attr, bond_dim_attr, weight_attr : str, optional
+        Root attributes holding the run's time, bond dimension and discarded
+        weight (default ``time``, ``bond_dim``, ``max_discarded_weight``).
+    disentangle : bool
+        Purifications: also the cut entropy after optimising ancilla unitaries
+        beside each cut (docs/mixed.md).
+    unit_cell : bool, optional
+        Read the site tensors as the unit cell of an infinite chain (True), never
+        (False), or when the bonds close into a cell with a bond other than 1
+        (None, default); see :mod:`bondscope._cellsource`.
+    transfer_iterations : int, optional
+        Unit cells: iteration limit of the transfer-matrix eigensolver
+        (default scipy's, 10 chi^2).
     parity : str or sequence of int, optional
         Fermion parity (0 or 1) of each local basis state, e.g. ``"0,1,1,0"``:
         the sites are fermionic modes in Jordan-Wigner order (used by
@@ -175,16 +190,23 @@ class ProfileOptions:
     blocks: str = None
     block_form: str = None
     charge_flow: str = "rightward"
+    time_attr: str = None
+    bond_dim_attr: str = None
+    weight_attr: str = None
+    disentangle: bool = False
+    unit_cell: bool = None
+    transfer_iterations: int = None
     parity: tuple = None
 
     def __post_init__(self):
         from ._measure import renyi_orders
 
         put = lambda name, value: object.__setattr__(self, name, value)  # noqa: E731
-        for name in ("state", "tensors"):
+        for name in ("state", "tensors", *RUN_META):
             value = getattr(self, name)
             if value is not None and not isinstance(value, str):
-                raise TypeError(f"{option_label(name)} must be a dataset path (str), found "
+                what = "an attribute name" if name in RUN_META else "a dataset path"
+                raise TypeError(f"{option_label(name)} must be {what} (str), found "
                                 f"{type(value).__name__}")
         if self.state is not None and self.tensors is not None:
             raise ValueError("give either a state dataset (state=, --state) or a tensor "
@@ -221,7 +243,16 @@ class ProfileOptions:
             put("max_memory", _integer(self.max_memory, "max_memory", 1))
         if self.threads is not None:
             put("threads", _integer(self.threads, "threads", 1))
+        if self.unit_cell not in (None, True, False):
+            raise ValueError(f"{option_label('unit_cell')} must be True, False or None, "
+                             f"found {self.unit_cell!r}")
+        if self.transfer_iterations is not None:
+            put("transfer_iterations", _integer(self.transfer_iterations,
+                                                "transfer_iterations", 1))
         self._check_charges(put)
+        if not isinstance(self.disentangle, bool):
+            raise ValueError(f"{option_label('disentangle')} must be True or False, found "
+                             f"{self.disentangle!r}")
         put("parity", _parity(self.parity))
 
     def _check_charges(self, put):
@@ -296,8 +327,9 @@ class ProfileOptions:
         return out
 
     def recorded(self):
-        """The options that decide a profile's content (resources left out), as JSON values."""
+        """The options that decide a profile's content (resources and run-metadata names
+        left out), as JSON values."""
         # parity only matters to mutual information; left out when unset so that batch
         # records written before it existed still match
         return {k: v for k, v in self.to_dict().items()
-                if k not in RESOURCES and not (k == "parity" and v is None)}
+                if k not in (*RESOURCES, *RUN_META) and not (k == "parity" and v is None)}

@@ -11,15 +11,17 @@ import numpy as np
 from ._document import FORMAT, VERSION, Profile
 from ._estimate import check_memory, estimate
 from ._exponent import norm_text, stored_norm
-from ._measure import discarded_weight, kept_rank, spectrum_measures
+from ._measure import discarded_weight, floor_errors, kept_rank, spectrum_measures
 from ._options import ProfileOptions
 
 __all__ = ["profile", "inspect", "open_any", "UnnormalisedStateWarning"]
 
-# Relative deviation of the norm from 1 above which the user is told, and its
-# floor in units of the stored precision's eps (a float32 state is normalised to ~1e-7).
-_NORM_TOLERANCE = 1e-8
-_NORM_EPS_UNITS = 100
+# Relative deviation of the norm from 1 above which the user is told: the worst-case
+# rounding of 10^4 single-precision updates, n eps (Higham, Accuracy and Stability of
+# Numerical Algorithms, 2nd ed., sec. 3.1), about 1.2e-3; a time evolution that never
+# renormalises drifts by less (1.00005 is ordinary), a state never normalised far more.
+# The norm itself is always recorded (the document's ``norm``).
+NORM_TOLERANCE = 1e4 * float(np.finfo(np.float32).eps)
 
 
 class UnnormalisedStateWarning(UserWarning):
@@ -47,7 +49,11 @@ def open_any(source, options):
     if isinstance(source, np.ndarray):
         return amplitudes_from_array(source, options.local_dim, options.precision)
     if isinstance(source, (list, tuple)):
-        return chain_from_arrays(list(source), options.axes, options.precision)
+        if options.unit_cell is False:
+            return chain_from_arrays(list(source), options.axes, options.precision)
+        from ._cellsource import tensors_source
+
+        return tensors_source(list(source), options.axes, options.precision, options.unit_cell)
     raise TypeError(f"cannot profile a {type(source).__name__}; pass a checkpoint path, a "
                     "state vector (ndarray) or a list of site tensors")
 
@@ -91,6 +97,12 @@ def _charge_kernel(src, opts, tick):
     return result, src.bond_dims if src.kind == "mps" else None
 
 
+def _mixed_kernel(src, opts, tick):
+    from ._kernels.mixedprofile import mixed_spectra
+
+    return mixed_spectra(src, opts, tick), src.bond_dims
+
+
 def _bound_charges(src, opts):
     if hasattr(src, "blocks"):
         return src.charges
@@ -101,15 +113,30 @@ def _bound_charges(src, opts):
         src.local_dims, getattr(src, "labels", None), where=option_label("charges"))
 
 
+def _cell_kernel(src, opts, tick):
+    from ._kernels.cell import cell_spectra
+
+    return cell_spectra(src, maxiter=opts.transfer_iterations, tick=tick), src.bond_dims
+
+
+def _no_charged_cells(src, opts, tick):
+    raise ValueError(f"{src.name}: charge-resolved spectra (charges=, --charges) of unit "
+                     "cells are not implemented; profile the cell without charges")
+
+
 # source kind -> (kernel, progress steps); a kernel returns (SweepResult, stored bonds or None)
 KERNELS = {
     "mps": (_chain_kernel, lambda src: 2 * src.sites - 1),
     "state-vector": (_amplitude_kernel, lambda src: src.sites - 1),
+    "density-matrix": (_mixed_kernel, lambda src: 4 * src.sites - 2),
+    "purified": (_mixed_kernel, lambda src: 5 * src.sites - 3),
+    "unit-cell": (_cell_kernel, lambda src: src.sites + 3),
 }
 # with local charges (or a block-sparse source): charge-resolved spectra
 CHARGE_KERNELS = {
     "mps": (_charge_kernel, lambda src: 2 * src.sites),
     "state-vector": (_charge_kernel, lambda src: src.sites - 1),
+    "unit-cell": (_no_charged_cells, lambda src: 0),
 }
 
 
@@ -130,7 +157,9 @@ def profile(source, options=None, *, progress=False, **kwargs):
     source : str, Path, ndarray or list of ndarray
         An HDF5 checkpoint; a state vector (1-D of length prod(d_i), or shaped
         (d_1, ..., d_N)); or site tensors shaped (left, phys, right) (or in the
-        order ``axes``), with bonds of 1 (or rank 2) at the ends.
+        order ``axes``), with bonds of 1 (or rank 2) at the ends; or rank-4 site
+        tensors of a mixed state with ``axes`` left,ket,bra,right (a density
+        matrix) or left,phys,ancilla,right (a purification), see docs/mixed.md.
     options : ProfileOptions, optional
         Layout, measures and resources; keywords override its fields.
     progress : bool
@@ -139,7 +168,7 @@ def profile(source, options=None, *, progress=False, **kwargs):
         Any field of :class:`~bondscope.ProfileOptions`: ``state``, ``tensors``,
         ``local_dim``, ``axes``, ``renyi``, ``base``, ``spectrum``, ``bond_dim``,
         ``weight_tol``, ``route``, ``precision``, ``scratch``, ``max_memory``,
-        ``threads``.
+        ``threads``, ``charges``, ``disentangle`` (purifications).
 
     Returns
     -------
@@ -149,7 +178,8 @@ def profile(source, options=None, *, progress=False, **kwargs):
     ------
     CheckpointError
         The checkpoint or arrays are not a valid state (see :func:`open_source`),
-        NaN/Inf values, zero norm.
+        NaN/Inf values, zero norm; a rank-4 family that is not a density matrix
+        (not Hermitian, trace zero or negative) or a purification of zero norm.
     MemoryLimitError
         The pre-flight estimate exceeds the memory limit; nothing is read.
     TypeError
@@ -160,7 +190,12 @@ def profile(source, options=None, *, progress=False, **kwargs):
     Warns
     -----
     UnnormalisedStateWarning
-        The state's norm differs from 1; the normalised state is profiled.
+        The norm differs from 1 by more than 1.2e-3 (accumulated single-precision
+        rounding, see ``NORM_TOLERANCE``); the normalised state is profiled.
+    ResolutionWarning
+        An ill-conditioned stored gauge leaves the values resolved only above
+        sqrt(eps), or a Rényi order is too sensitive to the floor to be reported
+        at some cuts (the document's ``floor_errors``).
 
     Notes
     -----
@@ -175,12 +210,21 @@ def profile(source, options=None, *, progress=False, **kwargs):
     >>> p = bondscope.profile(bell, base=2)
     >>> p.entropies.round(12).tolist(), p.schmidt_ranks.tolist()
     ([1.0], [2])
+
+    A density matrix as an MPO: two qubits at infinite temperature.
+
+    >>> rho = [np.eye(2).reshape(1, 2, 2, 1) / 2] * 2
+    >>> m = bondscope.profile(rho, axes="left,ket,bra,right", base=2)
+    >>> m["purity"], m.column("renyi2_left").round(12).tolist()
+    (0.25, [1.0])
     """
     opts = ProfileOptions.from_kwargs(options, **kwargs)
     with open_any(source, opts) as src:
         route = _route(src, opts)
         charged = opts.charges is not None or hasattr(src, "blocks")
-        check_memory(estimate(src, route, opts.truncating, charged), opts.max_memory)
+        _check_kind(src, opts, charged)
+        check_memory(estimate(src, route, opts.truncating, charged, opts.disentangle),
+                     opts.max_memory)
         kernel, steps = (CHARGE_KERNELS if charged else KERNELS)[src.kind]
         if route is not None:
             opts = opts.replace(route=route)
@@ -197,12 +241,35 @@ def profile(source, options=None, *, progress=False, **kwargs):
         doc["norm"] = norm[0]
         if norm[1]:
             doc["norm_exponent"] = norm[1]
+    _warn_sensitive(doc)
     return Profile(doc)
 
 
+def _warn_sensitive(doc):
+    from ._measure import ResolutionWarning
+
+    for order, cuts in doc["floor_errors"]["floor_sensitive"].items():
+        if cuts:
+            warnings.warn(f"{doc['source']}: Renyi order {order} is too sensitive to the "
+                          f"resolution floor at {len(cuts)} of {len(doc['cuts'])} cuts "
+                          "(values under the floor could move it; see floor_errors)",
+                          ResolutionWarning, stacklevel=3)
+
+
+def _check_kind(src, opts, charged):
+    """Options that do not apply to this kind of source (ValueError)."""
+    from ._options import option_label
+
+    if opts.disentangle and src.kind != "purified":
+        raise ValueError(f"{option_label('disentangle')} applies to purifications (axes "
+                         f"left,phys,ancilla,right); {src.name} is a {src.kind}")
+    if charged and src.kind not in CHARGE_KERNELS:
+        raise ValueError(f"{option_label('charges')} is not available for a {src.kind} "
+                         f"({src.name}); profile without charges")
+
+
 def _warn_norm(src, norm):
-    stored_eps = float(np.finfo(src.dtype if src.dtype.kind in "fc" else np.float64).eps)
-    if abs(norm - 1.0) > max(_NORM_TOLERANCE, _NORM_EPS_UNITS * stored_eps):
+    if abs(norm - 1.0) > NORM_TOLERANCE:
         warnings.warn(f"{src.name}: state norm is {norm:.12g}; profiled the "
                       "normalised state", UnnormalisedStateWarning, stacklevel=3)
 
@@ -214,13 +281,18 @@ def _document(src, opts, result, bonds):
            "sites": src.sites, "local_dims": src.local_dims, "log_base": opts.base,
            "norm": result.norm, "route": result.route, "dtype": str(src.dtype),
            "precision": str(src.compute_dtype), "bondscope_version": __version__}
-    cuts, bound = [], 0.0
+    from ._source import source_eps
+
+    # gram floors come from weights resolved to floor^2, unless coarser data set them
+    weights = result.route == "gram" and source_eps(src) <= np.finfo(src.compute_dtype).eps
+    cuts, bound, bounds = [], 0.0, []
     for i, (s, floor) in enumerate(zip(result.spectra, result.floors)):
-        m = spectrum_measures(s, opts.renyi, opts.base_value, floor)
+        m = spectrum_measures(s, opts.renyi, opts.base_value, floor, weights=weights)
         cut = {"position": i + 1,
                "bond_dimension": int(bonds[i]) if bonds else m["schmidt_rank"],
                "schmidt_rank": m["schmidt_rank"], "entropy": m["entropy"],
                "renyi": m["renyi"], "resolution_floor": floor}
+        bounds.append(m)
         if opts.truncating:
             keep = min(kept_rank(s, opts.bond_dim, opts.weight_tol), m["schmidt_rank"])
             cut["kept"] = keep
@@ -231,6 +303,8 @@ def _document(src, opts, result, bonds):
             k = resolved.size if opts.spectrum is True else opts.spectrum
             cut["schmidt_values"] = resolved[:k].tolist()
         cuts.append(cut)
+    if hasattr(result, "cell"):
+        doc.update(result.cell)
     if opts.truncating:
         doc["truncation"] = {"bond_dim": opts.bond_dim, "weight_tol": opts.weight_tol,
                              "infidelity": result.infidelity, "bound": bound}
@@ -238,6 +312,11 @@ def _document(src, opts, result, bonds):
         from ._kernels.sectors import sector_document
 
         doc["charges"] = sector_document(result, _bound_charges(src, opts), opts, cuts)
+    doc["floor_errors"] = floor_errors(bounds, opts.renyi)
+    if hasattr(result, "renyi2"):
+        from ._kernels.mixedprofile import mixed_document
+
+        mixed_document(doc, cuts, result, src, opts)
     doc["cuts"] = cuts
     return doc
 
@@ -278,16 +357,18 @@ def inspect(source, options=None, **kwargs):
         if isinstance(source, (str, os.PathLike)):
             info["file_bytes"] = Path(source).stat().st_size
         route = _route(src, opts)
-        if src.kind == "mps":
+        if src.kind == "unit-cell":
+            info["unit_cell"] = src.detection
+        if src.kind != "state-vector":
             info["bond_dims"] = src.bond_dims
             info["max_bond_dim"] = max(src.bond_dims)
             info["axes"] = ",".join(src.axes)
             info["site_labels"] = [src.labels[0], src.labels[-1]]
         if route is not None:
             info["route"] = route
-        info["estimate"] = estimate(src, route, opts.truncating,
-                                    opts.charges is not None).to_dict()
-        if not hasattr(src, "blocks"):
+        info["estimate"] = estimate(src, route, opts.truncating, opts.charges is not None,
+                                    opts.disentangle).to_dict()
+        if src.kind in ("mps", "state-vector") and not hasattr(src, "blocks"):
             from ._kernels.pairtasks import pair_estimate
 
             info["mutual_estimate"] = pair_estimate(src).to_dict()

@@ -5,7 +5,9 @@ heading) with each checkpoint's central charge and scaling law, the failed
 checkpoints with their errors, the notes and warnings of each checkpoint, and
 for each series its entropy, spectrum and convergence (or, for a time series,
 heatmap) figures, and, when the profiles carry charge sectors, the entropy
-split and the spectrum by charge sector; a checkpoint outside every series
+split and the spectrum by charge sector, and for mixed states (density
+matrices, purifications) the physical Rényi-2 entropies beside the stored
+form's cut entropy; a checkpoint outside every series
 gets its own entropy and spectrum figures.  Figures are inlined as base64
 PNG; the style sheet and the few lines of sorting script are inline too, so
 the file opens offline, anywhere, and nothing is fetched from the network.
@@ -45,7 +47,8 @@ _COLUMNS = (
     ("status", "status", "done: profiled now; skipped: result already up to date; failed", None),
     ("series", "series", "the series the batch grouped it into", None),
     ("time", "t", "the checkpoint's time attribute", "{:.6g}".format),
-    ("bond_dim", "χ (run)", "the checkpoint's bond_dim attribute", None),
+    ("bond_dim", "χ (run)", ("the run's bond dimension: the checkpoint's attribute (bond_dim, "
+                            "or the batch's --bond-dim-attr), else the largest stored one"), None),
     ("sites", "N", "number of sites", None),
     ("max_bond_dimension", "max χ", "largest stored bond dimension", None),
     ("max_entropy", "max S", "largest entropy over the cuts", _fixed(4)),
@@ -272,6 +275,7 @@ def _section_html(anchor, heading, members, boundary, fit):
                           boundary=boundary, fit=fit, title=""),
              _spectrum_html(members[-1])]
     parts += _charge_figures(members[-1])
+    parts += _mixed_figures(members, heading)
     if timed:
         parts.append(_figure_html("heatmap", members, "Entropy S(l, t) through the series",
                                   f"entropy heatmap of {heading}", title=""))
@@ -300,6 +304,18 @@ def _charge_figures(last):
                                   "by charge sector", f"sector spectrum of {last.label}",
                                   title=""))
     return parts
+
+
+def _mixed_figures(members, heading):
+    """The mixed-state figure of a series of density-matrix or purified checkpoints."""
+    from ._figures.mixed import is_mixed
+
+    if not all(is_mixed(m.profile) for m in members):
+        return []
+    return [_figure_html("mixed", members, "Rényi-2 entropy S_2(A) and mutual information "
+                         "I_2 of the physical state, beside the stored form's cut entropy "
+                         "(before and after disentangling, where asked)",
+                         f"mixed-state entropies of {heading}", title="")]
 
 
 def _counts(total, counts):

@@ -11,24 +11,30 @@ import numpy as np
 
 from ._errors import CheckpointError
 from ._exponent import amplitude_shift, shifted, tensor_shift
+from ._options import PRECISIONS
 from ._vectorshape import power_hint
 
-__all__ = ["ChainSource", "AmplitudeSource", "AXIS_WORDS", "parse_axes", "chain_from_arrays",
-           "amplitudes_from_array", "compute_dtype", "numeric_dtype"]
+__all__ = ["ChainSource", "AmplitudeSource", "AXIS_WORDS", "WORD_SETS", "parse_axes",
+           "chain_from_arrays", "amplitudes_from_array", "compute_dtype", "numeric_dtype",
+           "source_eps"]
 
 AXIS_WORDS = ("left", "phys", "right")
+# pure states, density matrices (bondscope._mixed) and purifications
+WORD_SETS = (AXIS_WORDS, ("left", "ket", "bra", "right"), ("left", "phys", "ancilla", "right"))
+_WORD_HINT = ("use a permutation of left,phys,right (a pure state), left,ket,bra,right (a "
+              "density matrix) or left,phys,ancilla,right (a purification)")
 
 
 def parse_axes(text):
-    """'left,phys,right' (any permutation) -> tuple of words."""
+    """'left,phys,right' (any permutation, or of a set in WORD_SETS) -> tuple of words."""
     words = tuple(w.strip().lower() for w in text.split(",")) if isinstance(text, str) \
         else tuple(text)
     for w in words:
-        if w not in AXIS_WORDS:
-            raise ValueError(f"unknown axis word {w!r} in axes {','.join(words)}; "
-                             "use a permutation of left,phys,right")
-    if sorted(words) != sorted(AXIS_WORDS):
-        raise ValueError(f"axes {','.join(words)} is not a permutation of left,phys,right")
+        if not any(w in ws for ws in WORD_SETS):
+            raise ValueError(f"unknown axis word {w!r} in axes {','.join(words)}; {_WORD_HINT}")
+    if not any(sorted(words) == sorted(ws) for ws in WORD_SETS):
+        raise ValueError(f"axes {','.join(words)} is not a permutation of one word set; "
+                         f"{_WORD_HINT}")
     return words
 
 
@@ -42,11 +48,30 @@ def numeric_dtype(dtype, where):
 
 
 def compute_dtype(dtype, precision="promote"):
-    """The dtype the sweep works in: float64/complex128, or the stored single precision."""
+    """The dtype the sweep works in: float64/complex128, or the stored single precision.
+
+    Raises
+    ------
+    ValueError
+        ``precision`` is not one of ``promote``, ``stored``.
+    """
+    if precision not in PRECISIONS:
+        raise ValueError(f"precision (--precision) must be one of {', '.join(PRECISIONS)}, "
+                         f"found {precision!r}")
     dtype = np.dtype(dtype)
     if precision == "stored" and dtype in (np.float32, np.complex64):
         return dtype
     return np.dtype(np.complex128 if dtype.kind == "c" else np.float64)
+
+
+def source_eps(src):
+    """Relative precision of a source's numbers: eps of the coarser of its stored dtype
+    and its compute dtype (integers are exact; a float32 state is known to float32 eps
+    even when computed in double)."""
+    dtypes = [np.dtype(src.compute_dtype)]
+    if np.dtype(src.dtype).kind in "fc":
+        dtypes.append(np.dtype(src.dtype))
+    return max(float(np.finfo(d).eps) for d in dtypes)
 
 
 def _canonical(shape, words, first, last):
@@ -73,9 +98,6 @@ def _chain_problem(shapes, labels, words):
             allowed = "3 (or 2 at an end of the chain)"
             return (f"site {labels[i]}: tensor has rank {len(shape)} {tuple(shape)}, "
                     f"expected rank {allowed}"), i
-        if 0 in c:
-            return (f"site {labels[i]}: tensor shaped {tuple(shape)} has an axis of length "
-                    "0; expected bonds and local dimension >= 1"), i
         canon.append(c)
     if canon[0][0] != 1:
         return (f"site {labels[0]}: left bond is {canon[0][0]}, expected 1 at the open end "
@@ -102,8 +124,16 @@ def resolve_axes(shapes, labels, axes=None, where="chain"):
     if len(shapes) < 2:
         raise CheckpointError(f"{where}: found {len(shapes)} site tensor(s); a chain needs at "
                               "least 2 sites to have a cut")
+    for label, shape in zip(labels, shapes):
+        if 0 in shape:
+            raise CheckpointError(f"{where}: site {label}: tensor shaped {tuple(shape)} has an "
+                                  "axis of length 0; expected bonds and local dimension >= 1")
     if axes is not None:
         words = parse_axes(axes)
+        if len(words) != 3:
+            raise CheckpointError(f"{where}: axes {','.join(words)} name four axes but the site "
+                                  f"tensors have rank {max(len(s) for s in shapes)}; use "
+                                  "left,phys,right")
         problem = _chain_problem(shapes, labels, words)[0]
         if problem:
             raise CheckpointError(f"{where}: {problem}")
@@ -167,15 +197,29 @@ class ChainSource(_Held):
     def __init__(self, shapes, dtype, read, labels, axes, name, precision="promote"):
         self.stored_shapes = [tuple(int(x) for x in s) for s in shapes]
         self.axes = tuple(axes)
-        n = len(shapes)
-        self.shapes = [_canonical(s, self.axes, i == 0, i == n - 1)
-                       for i, s in enumerate(self.stored_shapes)]
+        self.shapes = self._canonical_shapes()
         self.dtype = np.dtype(dtype)
         self.compute_dtype = compute_dtype(self.dtype, precision)
         self.labels = list(labels)
         self.name = name
         self._read = read
         self._shifts = {}
+
+    def _canonical_shapes(self):
+        """(left, phys, right) per site from the stored shapes and axis words."""
+        n = len(self.stored_shapes)
+        return [_canonical(s, self.axes, i == 0, i == n - 1)
+                for i, s in enumerate(self.stored_shapes)]
+
+    def _raw(self, i):
+        """Site i as stored, its shape and values checked."""
+        raw = np.asarray(self._read(i))
+        if raw.shape != self.stored_shapes[i]:
+            raise CheckpointError(f"{self.name}: site {self.labels[i]} read with shape "
+                                  f"{raw.shape}, its metadata said {self.stored_shapes[i]}")
+        if not np.isfinite(raw).all():
+            raise CheckpointError(f"{self.name}: site {self.labels[i]} holds NaN or Inf values")
+        return raw
 
     @property
     def scale_exponent(self):
@@ -201,12 +245,7 @@ class ChainSource(_Held):
 
     def tensor(self, i):
         """Site i as an array shaped (left, phys, right) in the compute dtype."""
-        raw = np.asarray(self._read(i))
-        if raw.shape != self.stored_shapes[i]:
-            raise CheckpointError(f"{self.name}: site {self.labels[i]} read with shape "
-                                  f"{raw.shape}, its metadata said {self.stored_shapes[i]}")
-        if not np.isfinite(raw).all():
-            raise CheckpointError(f"{self.name}: site {self.labels[i]} holds NaN or Inf values")
+        raw = self._raw(i)
         words = self.axes if raw.ndim == 3 else \
             [w for w in self.axes if w != ("left" if i == 0 else "right")]
         a = raw.transpose([words.index(w) for w in AXIS_WORDS if w in words])
@@ -313,18 +352,27 @@ def _array(a, where):
     return a
 
 
-def chain_from_arrays(tensors, axes=None, precision="promote"):
-    """A ChainSource over in-memory site tensors (list of arrays)."""
+def array_family(tensors):
+    """(arrays, compute-ready dtype, labels, shapes) of a list of in-memory site tensors."""
     if isinstance(tensors, np.ndarray) or not len(tensors):
         raise TypeError("site tensors must be a non-empty list of arrays")
     arrays = [_array(t, f"site {i}") for i, t in enumerate(tensors)]
     dtype = np.result_type(*arrays)
     if dtype.kind not in "fc":
         dtype = np.dtype(np.float64)
-    labels = list(range(len(arrays)))
-    shapes = [a.shape for a in arrays]
-    words = resolve_axes(shapes, labels, axes, where="site tensors")
-    return ChainSource(shapes, dtype, arrays.__getitem__, labels, words, "<arrays>", precision)
+    return arrays, dtype, list(range(len(arrays))), [a.shape for a in arrays]
+
+
+def chain_from_arrays(tensors, axes=None, precision="promote"):
+    """A ChainSource (or, for rank-4 tensors, a MixedSource) over in-memory site tensors."""
+    arrays, dtype, labels, shapes = array_family(tensors)
+    from ._mixed import MixedSource, is_mixed_family, mixed_axes
+
+    # rank-4 tensors: a density matrix or a purification (bondscope._mixed)
+    resolve, kind = (mixed_axes, MixedSource) if is_mixed_family(shapes) else \
+        (resolve_axes, ChainSource)
+    words = resolve(shapes, labels, axes, where="site tensors")
+    return kind(shapes, dtype, arrays.__getitem__, labels, words, "<arrays>", precision)
 
 
 def amplitudes_from_array(state, local_dim=None, precision="promote"):

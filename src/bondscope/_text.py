@@ -1,11 +1,38 @@
-"""Plain-text output: the per-cut table and the inspect summary."""
+"""Plain-text output: the per-cut table, the inspect summary, and names made visible."""
 
 import math
 import re
+import unicodedata
 
 from ._estimate import format_bytes
+from ._exponent import norm_text
 
-__all__ = ["profile_table", "inspect_text", "entropy_unit", "natural_key"]
+__all__ = ["profile_table", "inspect_text", "entropy_unit", "natural_key", "visible"]
+
+# control, format (bidi overrides and isolates, zero-width marks), line and paragraph
+# separators, and lone surrogates (undecodable bytes of a file name)
+_HIDDEN = frozenset({"Cc", "Cf", "Zl", "Zp", "Cs"})
+
+
+def _mark(ch):
+    code = ord(ch)
+    if 0xDC80 <= code <= 0xDCFF:  # a byte that was not UTF-8 (surrogateescape)
+        return f"<0x{code - 0xDC00:02X}>"
+    return f"<U+{code:04X}>"
+
+
+def visible(text):
+    """``text`` with every invisible or reordering character spelled out as <U+XXXX>.
+
+    Examples
+    --------
+    >>> visible("run\\u202e5h.h5"), visible("tab\\there"), visible("plain name.h5")
+    ('run<U+202E>5h.h5', 'tab<U+0009>here', 'plain name.h5')
+    """
+    text = str(text)
+    if text.isprintable():
+        return text
+    return "".join(_mark(ch) if unicodedata.category(ch) in _HIDDEN else ch for ch in text)
 
 
 def natural_key(text):
@@ -33,10 +60,14 @@ def profile_table(profile):
     cuts = profile.cuts
     dims = profile.local_dims or []
     dim_text = str(dims[0]) if dims and len(set(dims)) == 1 else ",".join(map(str, dims))
-    lines = [f"{profile.source}",
+    lines = [visible(profile.source),
              f"  {profile.kind}, {profile.sites} sites, local dims {dim_text}, "
-             f"{profile.get('dtype', '?')}, norm {profile.norm:.12g}, "
+             f"{profile.get('dtype', '?')}, "
+             f"norm {norm_text(profile.norm, profile.get('norm_exponent', 0))}, "
              f"route {profile.get('route', '?')}, entropies in {entropy_unit(profile.log_base)}"]
+    if profile.get("cut_spectra"):
+        lines.append(f"  S, S_a, rank and floor per cut: {profile['cut_spectra']}; S2_A, S2_B, "
+                     "I2: the physical state's blocks")
     orders = profile.renyi_orders
     trunc = profile.truncation
     head = ["cut", "bond", "rank", "S"] + [f"S_{a}" for a in orders] + ["floor"]
@@ -45,6 +76,8 @@ def profile_table(profile):
     charged = bool(cuts) and "number_entropy" in cuts[0]
     if charged:
         head += ["S_num", "S_conf", "leading sectors (charge:p)"]
+    mixed = [k for k, _ in _MIXED_COLUMNS if cuts and k in cuts[0]]
+    head += [h for k, h in _MIXED_COLUMNS if k in mixed]
     rows = []
     for c in cuts:
         row = [str(c["position"]), str(c.get("bond_dimension", "")),
@@ -56,6 +89,7 @@ def profile_table(profile):
         if charged:
             row += [f"{c['number_entropy']:.6f}", f"{c['configurational_entropy']:.6f}",
                     _leading_sectors(c["sectors"])]
+        row += [_mixed_cell(c[k]) for k in mixed]
         rows.append(row)
     widths = [max(len(h), *(len(r[i]) for r in rows)) for i, h in enumerate(head)]
     fmt = "  ".join(f"{{:>{w}}}" for w in widths)
@@ -70,12 +104,36 @@ def profile_table(profile):
         lines.append(f"truncation bond_dim={trunc['bond_dim']} weight_tol={trunc['weight_tol']}: "
                      f"infidelity {'not tracked' if infid is None else f'{infid:.6e}'} (bound: "
                      f"sum of discarded weights {trunc['bound']:.6e})")
+    if profile.get("purity") is not None:
+        lines.append(f"purity Tr rho^2 = {profile['purity']:.10g} (+- "
+                     f"{profile['purity_error']:.1e}), S_2 of the state "
+                     f"{profile['renyi2_state']:.10f}")
+    if profile.get("disentangle"):
+        dis = profile["disentangle"]
+        settled = "settled" if dis.get("sweeps_converged") else "not settled"
+        lines.append(f"disentangling: {dis['converged_cuts']} of {dis['cuts']} cuts converged, "
+                     f"{dis.get('sweeps', '?')} sweep(s), {settled} ({dis['window']})")
     charges = profile.get("charges")
     if charges:
         moduli = ",".join(map(str, charges["moduli"]))
         lines.append(f"charges {charges['local']} (moduli {moduli}): total charge "
                      f"{charges['total']}, weight outside it {charges['outside_weight']:.1e}")
     return "\n".join(lines)
+
+
+# mixed-state per-cut fields shown: key, heading
+_MIXED_COLUMNS = (("renyi2_left", "S2_A"), ("renyi2_right", "S2_B"),
+                  ("mutual_information_2", "I2"), ("renyi2_error", "S2 err"),
+                  ("disentangled_entropy", "S_dis"), ("disentangled_rank", "rank_dis"),
+                  ("disentangled_kept", "kept_dis"), ("disentangle_converged", "conv"))
+
+
+def _mixed_cell(value):
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if isinstance(value, int):
+        return str(value)
+    return f"{value:.1e}" if abs(value) < 1e-3 and value else f"{value:.8f}"
 
 
 def _leading_sectors(sectors, shown=3):
@@ -94,12 +152,16 @@ def inspect_text(info):
     dims = info["local_dims"]
     dim_text = str(dims[0]) if len(set(dims)) == 1 else ",".join(map(str, dims))
     est = info["estimate"]
-    lines = [f"{info['source']}",
+    lines = [visible(info["source"]),
              f"  kind          {info['kind']}",
              f"  sites         {info['sites']}",
              f"  local dims    {dim_text}",
              f"  dtype         {info['dtype']}"]
-    if info["kind"] == "mps":
+    if info["kind"] == "unit-cell":
+        how = "--unit-cell asked" if info["unit_cell"] == "requested" else \
+            "detected: first left bond = last right bond != 1"
+        lines.append(f"  unit cell     {info['sites']} sites repeating ({how})")
+    if "bond_dims" in info:
         bonds = info["bond_dims"]
         shown = " ".join(map(str, bonds)) if len(bonds) <= 24 else \
             " ".join(map(str, bonds[:10])) + " ... " + " ".join(map(str, bonds[-10:]))

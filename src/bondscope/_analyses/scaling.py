@@ -230,6 +230,10 @@ def fit_scaling(source, *, boundary="open", window=None, corrections=None, parit
         raise ValueError(f"parity_exponent (--parity-exponent) must be > 0, "
                          f"found {parity_exponent!r}")
     prof = as_profile(source, spectra=spectrum_report)
+    if prof.kind == "unit-cell":
+        raise ValueError(f"{prof.source or 'profile'}: a unit cell of an infinite chain has no "
+                         "finite-size scaling; fit several cells at growing bond dimension "
+                         "(fit_cell_scaling, `bondscope fit cell_chi*.h5`)")
     sites = prof.sites
     if sites < 3:
         raise ValueError(f"a scaling fit needs at least 3 sites, the profile has {sites}")

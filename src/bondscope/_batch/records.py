@@ -8,22 +8,33 @@ its run attributes, wall time and warnings.
 import hashlib
 import json
 import os
+import stat as statmode
 
+from .._linked import linked_stamps
 from .._runinfo import file_attributes
 
-__all__ = ["RECORD_VERSION", "ROW_ATTRS", "fingerprint", "resumed", "remove_leftovers",
-           "measures"]
+__all__ = ["RECORD_VERSION", "ROW_ATTRS", "fingerprint", "resumed", "measures"]
 
 RECORD_VERSION = 1
 # root attributes copied into each result and its summary row
 ROW_ATTRS = ("time", "time_unit", "bond_dim")
 
 
-def fingerprint(path, group_attr=None):
-    """(fingerprint, root attributes) of a checkpoint; metadata None when unreadable."""
+def fingerprint(path, group_attr=None, rename=None, notes=None):
+    """(fingerprint, root attributes) of a checkpoint; metadata None when unreadable.
+
+    The fingerprint holds the file's size and modification time, a hash of its
+    metadata (group and dataset names, shapes, dtypes) and, when its datasets
+    resolve to other files (virtual-dataset sources, external links), those
+    files' paths, sizes and modification times under ``linked``.  ``rename``
+    and ``notes`` are those of :func:`bondscope._runinfo.file_attributes`.
+    """
     import h5py
 
     st = os.stat(path)
+    stamp = {"size": st.st_size, "mtime_ns": st.st_mtime_ns, "metadata": None}
+    if not statmode.S_ISREG(st.st_mode):  # a FIFO or device would block the open
+        return stamp, {}
     digest = hashlib.sha256()
     attrs = {}
 
@@ -36,41 +47,34 @@ def fingerprint(path, group_attr=None):
     try:
         with h5py.File(path, "r") as f:
             f.visititems(visit)
-            attrs = file_attributes(f, (*ROW_ATTRS, group_attr))
-        metadata = digest.hexdigest()
+            linked = linked_stamps(f)
+            attrs = file_attributes(f, (*ROW_ATTRS, group_attr), rename, notes)
+        stamp["metadata"] = digest.hexdigest()
     except Exception:  # unreadable in any way: never skipped; profiling says why
-        metadata = None
-    return {"size": st.st_size, "mtime_ns": st.st_mtime_ns, "metadata": metadata}, attrs
+        return stamp, attrs
+    if linked:
+        stamp["linked"] = linked
+    return stamp, attrs
 
 
-def resumed(plan, recorded, group_attr):
+def resumed(plan, recorded, group_attr, rename=None):
     """The skipped row of a checkpoint whose stored result still holds, else None."""
     try:
         with open(plan["target"], encoding="utf-8") as f:
             doc = json.load(f)
-    except (OSError, ValueError):
+    except (OSError, ValueError, RecursionError):
         return None
     record = doc.get("batch") if isinstance(doc, dict) else None
     if not isinstance(record, dict) or record.get("version") != RECORD_VERSION \
             or record.get("options") != recorded:
         return None
     try:
-        stamp, attrs = fingerprint(plan["path"], group_attr)
+        stamp, attrs = fingerprint(plan["path"], group_attr, rename)
     except OSError:
         return None
     if stamp["metadata"] is None or record.get("fingerprint") != stamp:
         return None
     return {"key": plan["key"], "status": "skipped", "attrs": attrs, **measures(doc)}
-
-
-def remove_leftovers(directory, keys):
-    """Delete temporary files of interrupted writes (named by atomic_write) of these keys."""
-    for entry in os.scandir(directory):
-        name = entry.name
-        if name.startswith(".") and name.endswith(".part"):
-            key = name[1:].rpartition(".json.")[0]
-            if key in keys:
-                os.unlink(entry.path)
 
 
 def measures(doc):

@@ -15,25 +15,29 @@ the whole ones.  With a shard the summary and series files carry a
 ``.shard-I-of-N`` suffix, so array tasks never write the same file.
 """
 
+import math
 import os
 import re
 import sys
 from contextlib import contextmanager
-from numbers import Integral
+from numbers import Integral, Real
 from pathlib import Path
 
+from .._files import remove_stale_parts
 from .._options import ProfileOptions
+from .._runinfo import attribute_names
 from .cluster import dask_results
 from .inputs import collect_inputs, parse_shard, result_key
 from .local import local_results
-from .records import remove_leftovers, resumed
+from .records import resumed
 from .summaries import PROFILES, BatchSummary, row, write_series, write_summary
 
 __all__ = ["run_batch"]
 
 
 def run_batch(inputs, out, *, workers=None, scheduler=None, shard=None, force=False,
-              group_attr=None, group_pattern=None, progress=False, options=None, **profiling):
+              group_attr=None, group_pattern=None, time_limit=None, progress=False,
+              options=None, **profiling):
     """Profile many checkpoints into a results directory, skipping finished ones.
 
     Parameters
@@ -57,13 +61,21 @@ def run_batch(inputs, out, *, workers=None, scheduler=None, shard=None, force=Fa
     group_pattern : str, optional
         Regular expression searched in the checkpoint path as found; its first
         group is the series name.
+    time_limit : float, optional
+        Seconds one checkpoint may take (local pool only).  Its worker stops
+        it at the limit; one blocked where it cannot be stopped (a read hung
+        inside HDF5) is killed a little later with the pool's other workers,
+        whose checkpoints are given out again.  Either way it becomes a
+        ``failed`` row ("TimeLimit: ...").
     progress : bool
         Progress bar with done/skipped/failed counts on a terminal's stderr.
     options : ProfileOptions, optional
         How every checkpoint is profiled.
     **profiling
         Fields of :class:`~bondscope.ProfileOptions` (``renyi``, ``bond_dim``,
-        ``weight_tol``, ``spectrum``, layout, ...), overriding ``options``.
+        ``weight_tol``, ``spectrum``, layout, the run-metadata attribute names
+        ``time_attr``, ``bond_dim_attr``, ``weight_attr``, ...), overriding
+        ``options``.
 
     Returns
     -------
@@ -99,11 +111,20 @@ def run_batch(inputs, out, *, workers=None, scheduler=None, shard=None, force=Fa
     if workers is not None and (isinstance(workers, bool) or not isinstance(workers, Integral)
                                 or workers < 1):
         raise ValueError(f"workers must be an integer >= 1, found {workers!r}")
+    if time_limit is not None:
+        if isinstance(time_limit, bool) or not isinstance(time_limit, Real) \
+                or not 0 < time_limit < math.inf:
+            raise ValueError(f"time_limit (--time-limit) must be a number of seconds > 0, "
+                             f"found {time_limit!r}")
+        if scheduler is not None:
+            raise ValueError("time_limit (--time-limit) applies to the local pool; on a Dask "
+                             "cluster use the cluster's own limits")
+        time_limit = float(time_limit)
     if group_attr is not None and group_pattern is not None:
         raise ValueError("give either group_attr or group_pattern, not both")
     pattern = _group_regex(group_pattern)
     opts = ProfileOptions.from_kwargs(options, **profiling)
-    recorded = opts.recorded()
+    recorded, rename = opts.recorded(), attribute_names(opts)
     paths = collect_inputs(inputs)
     if shard is not None:
         paths = paths[shard[0]::shard[1]]
@@ -111,26 +132,26 @@ def run_batch(inputs, out, *, workers=None, scheduler=None, shard=None, force=Fa
         raise OSError(f"{out}: exists and is not a directory; choose a results directory")
     (out / PROFILES).mkdir(parents=True, exist_ok=True)
 
-    plans, results = _plan(paths, out, recorded, group_attr, force)
+    plans, results = _plan(paths, out, recorded, group_attr, rename, force)
     todo = [plan for plan in plans if plan["key"] not in results]
     if scheduler is None:
         workers = int(workers or _usable_cores())
         if opts.threads is None:
             opts = opts.replace(threads=max(1, _usable_cores() // workers))
-    tasks = [dict(plan, options=opts, recorded=recorded, group_attr=group_attr)
-             for plan in todo]
+    tasks = [dict(plan, options=opts, recorded=recorded, group_attr=group_attr, rename=rename,
+                  time_limit=time_limit) for plan in todo]
 
     with _tally(len(plans), progress) as tally:
         for found in results.values():
             tally(found["status"])
         if tasks:
-            engine = local_results(tasks, workers) if scheduler is None else \
+            engine = local_results(tasks, workers, time_limit) if scheduler is None else \
                 dask_results(tasks, scheduler)
             for found in engine:
                 results[found["key"]] = found
                 tally(found["status"])
 
-    rows = [row(plan, results[plan["key"]], pattern, group_attr) for plan in plans]
+    rows = [row(plan, results[plan["key"]], pattern, group_attr, rename) for plan in plans]
     suffix = "" if shard is None else f".shard-{shard[0]}-of-{shard[1]}"
     group_by = None if pattern is None and group_attr is None else \
         ({"attr": group_attr} if group_attr is not None else {"pattern": group_pattern})
@@ -140,14 +161,15 @@ def run_batch(inputs, out, *, workers=None, scheduler=None, shard=None, force=Fa
     return BatchSummary(rows, out, files)
 
 
-def _plan(paths, out, recorded, group_attr, force):
+def _plan(paths, out, recorded, group_attr, rename, force):
     """Each checkpoint's key and target, and the skipped rows of those still valid."""
     plans = [{"source": str(p), "path": str(p.resolve()), "key": result_key(p),
               "target": str(out / PROFILES / f"{result_key(p)}.json")} for p in paths]
-    remove_leftovers(out / PROFILES, {plan["key"] for plan in plans})
+    for directory in (out, out / PROFILES):  # files of killed writers; live ones stay
+        remove_stale_parts(directory)
     results = {}
     for plan in plans:
-        found = None if force else resumed(plan, recorded, group_attr)
+        found = None if force else resumed(plan, recorded, group_attr, rename)
         if found is not None:
             results[plan["key"]] = found
     return plans, results

@@ -6,8 +6,9 @@ import json
 import os
 from pathlib import Path
 
-from .._files import atomic_write
-from .._errors import one_line
+from .._errors import EXIT_SOME_FAILED, one_line
+from .._files import atomic_write, csv_cell
+from .._text import natural_key
 
 __all__ = ["BatchSummary", "COLUMNS", "PROFILES", "SUMMARY_FORMAT", "SERIES_FORMAT", "row",
            "write_summary", "write_series"]
@@ -15,11 +16,11 @@ __all__ = ["BatchSummary", "COLUMNS", "PROFILES", "SUMMARY_FORMAT", "SERIES_FORM
 SUMMARY_FORMAT = "bondscope-batch-summary"
 SERIES_FORMAT = "bondscope-series"
 PROFILES = "profiles"
-COLUMNS = ("source", "status", "series", "time", "time_unit", "bond_dim", "kind", "sites",
+COLUMNS = ("source", "status", "series", "time", "time_unit", "bond_dim", "bond_dim_from",
+           "kind", "sites",
            "max_entropy", "middle_entropy", "max_bond_dimension", "max_discarded_weight",
            "infidelity", "total_charge", "middle_number_entropy", "wall_seconds", "profile",
-           "key", "error", "warnings")
-_EXIT_CAP = 100
+           "key", "checkpoint", "error", "warnings")
 
 
 class BatchSummary:
@@ -56,8 +57,9 @@ class BatchSummary:
 
     @property
     def exit_status(self):
-        """The number of failed checkpoints, capped at 100 (0 when all went well)."""
-        return min(self.failed, _EXIT_CAP)
+        """0 when every checkpoint was profiled or skipped, else 5 (``EXIT_SOME_FAILED``);
+        the count of failures is :attr:`failed` and the summary's ``counts``."""
+        return EXIT_SOME_FAILED if self.failed else 0
 
     def __len__(self):
         return len(self.rows)
@@ -67,7 +69,9 @@ class BatchSummary:
                 f"{self.done} done, {self.skipped} skipped, {self.failed} failed>")
 
 
-def row(plan, found, pattern, group_attr):
+def row(plan, found, pattern, group_attr, rename=None):
+    """One summary row; ``bond_dim`` is the checkpoint's attribute (named in
+    ``bond_dim_from``), else its largest stored bond dimension ("stored")."""
     attrs = found.get("attrs", {})
     series = None
     if pattern is not None:
@@ -77,9 +81,13 @@ def row(plan, found, pattern, group_attr):
         series = str(attrs[group_attr])
     row = dict.fromkeys(COLUMNS)
     row.update({k: v for k, v in found.items() if k in COLUMNS})
-    row.update(source=plan["source"], key=plan["key"], series=series,
+    row.update(source=plan["source"], key=plan["key"], checkpoint=plan["path"], series=series,
                time=attrs.get("time"), time_unit=attrs.get("time_unit"),
                bond_dim=attrs.get("bond_dim"))
+    if row["bond_dim"] is not None:
+        row["bond_dim_from"] = (rename or {}).get("bond_dim", "bond_dim")
+    elif row["max_bond_dimension"] is not None:
+        row.update(bond_dim=row["max_bond_dimension"], bond_dim_from="stored")
     if found["status"] != "failed":
         row["profile"] = f"{PROFILES}/{plan['key']}.json"
     return row
@@ -97,18 +105,31 @@ def write_summary(out, suffix, rows, inputs, shard, recorded, group_by):
     writer = csv.writer(buf, lineterminator="\n")
     writer.writerow(COLUMNS)
     for r in rows:
-        writer.writerow(["" if r[c] is None else (repr(r[c]) if isinstance(r[c], float)
-                                                  else r[c]) for c in COLUMNS])
+        writer.writerow([csv_cell("" if r[c] is None else (repr(r[c]) if isinstance(r[c], float)
+                                                           else r[c])) for c in COLUMNS])
     files = {"csv": out / f"summary{suffix}.csv", "json": out / f"summary{suffix}.json"}
     atomic_write(files["csv"], lambda tmp: Path(tmp).write_text(buf.getvalue(), "utf-8"))
     atomic_write(files["json"], lambda tmp: Path(tmp).write_text(text, "utf-8"))
     return files
 
 
+def _number(value):
+    """A time or bond dimension as a number for ordering (numeric text too), else None."""
+    if isinstance(value, bool):
+        return None
+    if isinstance(value, (int, float)):
+        return value
+    try:
+        return float(value)
+    except (TypeError, ValueError):
+        return None
+
+
 def _order(row):
-    return (row["time"] is None, row["time"] if isinstance(row["time"], (int, float)) else 0,
-            row["bond_dim"] is None,
-            row["bond_dim"] if isinstance(row["bond_dim"], (int, float)) else 0, row["source"])
+    """Series members by time, then bond dimension, numerically; then by name
+    (numbers in names compared as numbers)."""
+    time, bond = _number(row["time"]), _number(row["bond_dim"])
+    return (time is None, time or 0, bond is None, bond or 0, natural_key(row["source"]))
 
 
 def _compare_series(out, members):

@@ -17,8 +17,8 @@ from ._common import UsageError
 __all__ = ["main", "build_parser"]
 
 EPILOG = """exit status: 0 success, 1 internal failure, 2 usage error,
-3 unreadable or invalid checkpoint/profile, 4 refused by the memory pre-flight
-(batch: the number of failed checkpoints, capped at 100)"""
+3 unreadable or invalid checkpoint/profile, 4 refused by the memory pre-flight,
+5 batch ran but some checkpoints failed (their count is in the summary), 130 interrupted"""
 
 
 class _Parser(argparse.ArgumentParser):
@@ -69,8 +69,10 @@ def main(argv=None):
     except Exception as exc:
         if debug:
             raise
+        from .._text import visible
+
         code, message = _classify(exc)
-        print(f"error: {message}", file=sys.stderr)
+        print(f"error: {visible(message)}", file=sys.stderr)
         return code
 
 

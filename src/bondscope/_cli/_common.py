@@ -12,7 +12,7 @@ import sys
 
 __all__ = ["UsageError", "FLAGS", "add_flags", "add_layout_flags", "profile_options",
            "fit_options", "parse_size", "read_input", "print_json", "LAYOUT_FLAGS",
-           "RESOURCE_FLAGS", "MEASURE_FLAGS", "FIT_FLAGS"]
+           "RESOURCE_FLAGS", "MEASURE_FLAGS", "FIT_FLAGS", "RUN_FLAGS"]
 
 
 class UsageError(Exception):
@@ -69,11 +69,16 @@ FLAGS = {
         help="local dimension for a 1-D state vector: one integer or a comma list per site "
              "(default 2)")),
     "axes": ("layout", ("--axes",), dict(
-        metavar="ORDER", help="axis order of the site tensors, a permutation of left,phys,right")),
+        metavar="ORDER", help="axis order of the site tensors, a permutation of left,phys,right; "
+                             "mixed states: left,ket,bra,right or left,phys,ancilla,right")),
     "complex_parts": ("layout", ("--complex-parts",), dict(
         metavar="HOW", default="auto",
         help="state vector stored as real numbers with (re, im) in a last axis of length 2: "
              "auto (found from the shape, default), last-axis (force) or none")),
+    "unit_cell": ("layout", ("--unit-cell",), dict(
+        action="store_const", const=True, default=None,
+        help="read the site tensors as the unit cell of an infinite chain (detected without "
+             "this flag when the first left bond equals the last right bond and is not 1)")),
     # block-sparse checkpoints
     "blocks": ("layout", ("--blocks",), dict(
         metavar="PATTERN", help="block-sparse MPS: site groups, with a {site} placeholder, "
@@ -117,6 +122,10 @@ FLAGS = {
     "precision": ("measures", ("--precision",), dict(
         default="promote", help="single-precision checkpoints: compute in double (promote, "
                                 "default) or as stored (half the memory, floors at float32 eps)")),
+    # mixed states
+    "disentangle": ("measures", ("--disentangle",), dict(
+        action="store_true", help="purifications: also the cut entropy after optimising "
+                                  "ancilla unitaries beside each cut (docs/mixed.md)")),
     # resources
     "max_memory": ("resources", ("--max-memory",), dict(
         metavar="SIZE", type=parse_size,
@@ -126,8 +135,20 @@ FLAGS = {
     "threads": ("resources", ("--threads",), dict(
         metavar="N", type=int,
         help="threads for linear algebra (default: BLAS environment or core count)")),
+    "transfer_iterations": ("resources", ("--transfer-iterations",), dict(
+        metavar="N", type=int,
+        help="unit cells: iteration limit of the transfer-matrix eigensolver (default 10 chi^2)")),
     "quiet": ("resources", ("--quiet",), dict(action="store_true",
                                               help="no progress bar or warnings")),
+    # run metadata
+    "time_attr": ("run", ("--time-attr",), dict(
+        metavar="NAME", help="root attribute holding the run's time (default time)")),
+    "bond_dim_attr": ("run", ("--bond-dim-attr",), dict(
+        metavar="NAME", help="root attribute holding the run's bond dimension, e.g. chi "
+                             "(default bond_dim; else the largest stored bond)")),
+    "weight_attr": ("run", ("--weight-attr",), dict(
+        metavar="NAME", help="root attribute holding the run's discarded weight "
+                             "(default max_discarded_weight)")),
     # scaling fit
     "boundary": ("fit", ("--boundary",), dict(
         help="open (chain with two ends) or periodic (ring); default: the checkpoint's "
@@ -144,14 +165,16 @@ FLAGS = {
         help="decay exponent of the alternating term (default 1, free fermions)")),
 }
 
-LAYOUT_FLAGS = ("state", "tensors", "local_dim", "axes", "complex_parts", "blocks", "block_form",
-                "charge_flow")
+LAYOUT_FLAGS = ("state", "tensors", "local_dim", "axes", "complex_parts", "unit_cell",
+                "blocks", "block_form", "charge_flow")
 MEASURE_FLAGS = ("renyi", "base", "spectrum", "bond_dim", "weight_tol", "route", "precision",
-                 "charges", "modulus")
-RESOURCE_FLAGS = ("max_memory", "scratch", "threads", "quiet")
+                 "charges", "modulus", "disentangle")
+RESOURCE_FLAGS = ("max_memory", "scratch", "threads", "transfer_iterations", "quiet")
 FIT_FLAGS = ("boundary", "window", "corrections", "parity_exponent")
+RUN_FLAGS = ("time_attr", "bond_dim_attr", "weight_attr")
 _TITLES = {"layout": "checkpoint layout (auto-detected when omitted)", "measures": "measures",
-           "resources": "resources", "fit": "scaling fit"}
+           "resources": "resources", "fit": "scaling fit",
+           "run": "run metadata (root attribute names)"}
 
 
 def add_flags(p, *names):
@@ -182,9 +205,16 @@ def _registered(args, names):
 
 def profile_options(args, **overrides):
     """The :class:`~bondscope.ProfileOptions` that the verb's registered flags set."""
-    from .._options import BLOCK_LAYOUT, LAYOUT, MEASURES, RESOURCES, ProfileOptions
+    from .._options import (
+        BLOCK_LAYOUT,
+        LAYOUT,
+        MEASURES,
+        RESOURCES,
+        RUN_META,
+        ProfileOptions,
+    )
 
-    kwargs = _registered(args, (*LAYOUT, *BLOCK_LAYOUT, *MEASURES, *RESOURCES))
+    kwargs = _registered(args, (*LAYOUT, *BLOCK_LAYOUT, *MEASURES, *RESOURCES, *RUN_META))
     kwargs.update(overrides)
     return ProfileOptions.from_kwargs(**kwargs)
 

@@ -5,6 +5,7 @@ import warnings
 from contextlib import contextmanager
 
 from .._errors import one_line
+from .._text import visible
 
 __all__ = ["quiet_warnings"]
 
@@ -12,7 +13,7 @@ __all__ = ["quiet_warnings"]
 @contextmanager
 def quiet_warnings(quiet=False):
     def show(message, category, filename, lineno, file=None, line=None):
-        print(f"warning: {one_line(message)}", file=sys.stderr)
+        print(f"warning: {visible(one_line(message))}", file=sys.stderr)
 
     with warnings.catch_warnings():
         if quiet:

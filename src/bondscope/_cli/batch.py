@@ -2,7 +2,7 @@
 
 import sys
 
-from ._common import (LAYOUT_FLAGS, MEASURE_FLAGS, RESOURCE_FLAGS, add_flags,
+from ._common import (LAYOUT_FLAGS, MEASURE_FLAGS, RESOURCE_FLAGS, RUN_FLAGS, add_flags,
                       profile_options)
 
 HELP = "profile many checkpoints into a results directory (resumable, local pool or Dask)"
@@ -27,6 +27,9 @@ def add_arguments(p):
                         "one task of a SLURM job array")
     g.add_argument("--force", action="store_true",
                    help="recompute checkpoints that already have a result")
+    g.add_argument("--time-limit", metavar="SECONDS", type=float,
+                   help="seconds one checkpoint may take (local pool); one that runs longer "
+                        "is stopped and becomes a failed row")
     g = p.add_argument_group("series")
     series = g.add_mutually_exclusive_group()
     series.add_argument("--group-attr", metavar="NAME",
@@ -34,19 +37,22 @@ def add_arguments(p):
     series.add_argument("--group-pattern", metavar="REGEX",
                         help="regular expression searched in each path; its first group "
                              "names the series, e.g. 'run_(\\w+)_chi'")
-    add_flags(p, *LAYOUT_FLAGS, *MEASURE_FLAGS, *RESOURCE_FLAGS)
+    add_flags(p, *LAYOUT_FLAGS, *MEASURE_FLAGS, *RESOURCE_FLAGS, *RUN_FLAGS)
 
 
 def run(args):
     from .._batch.run import run_batch
+    from .._text import visible
 
     summary = run_batch(args.inputs, args.out, workers=args.workers, scheduler=args.scheduler,
                         shard=args.shard, force=args.force, group_attr=args.group_attr,
-                        group_pattern=args.group_pattern, progress=not args.quiet,
+                        group_pattern=args.group_pattern, time_limit=args.time_limit,
+                        progress=not args.quiet,
                         options=profile_options(args))
     for row in summary.rows:
         if row["status"] == "failed":
-            print(f"failed: {row['source']}: {row['error']}", file=sys.stderr)
+            print(f"failed: {visible(row['source'])}: {visible(row['error'])}",
+                  file=sys.stderr)
     print(f"{len(summary)} checkpoints: {summary.done} done, {summary.skipped} skipped, "
-          f"{summary.failed} failed; summary in {summary.files['csv']}")
+          f"{summary.failed} failed; summary in {visible(summary.files['csv'])}")
     return summary.exit_status

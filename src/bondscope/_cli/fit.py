@@ -3,13 +3,15 @@
 from ._common import (FIT_FLAGS, LAYOUT_FLAGS, RESOURCE_FLAGS, add_flags, fit_options, print_json,
                       read_input)
 
-HELP = "fit the Calabrese-Cardy form: central charge, constant and scaling law"
+HELP = ("fit the Calabrese-Cardy form: central charge, constant and scaling law (one chain), "
+        "or finite-entanglement scaling (unit cells at growing bond dimension)")
 ORDER = 20
 
 
 def add_arguments(p):
-    p.add_argument("file", metavar="PROFILE_OR_CHECKPOINT",
-                   help="saved profile (.json, .csv, .h5 results) or HDF5 checkpoint")
+    p.add_argument("file", metavar="PROFILE_OR_CHECKPOINT", nargs="+",
+                   help="saved profile (.json, .csv, .h5 results) or HDF5 checkpoint; several "
+                        "unit cells of one model for finite-entanglement scaling")
     add_flags(p, *FIT_FLAGS)
     p.add_argument("--spectrum-report", action="store_true",
                    help="add entanglement gap and degeneracy pattern per cut (needs spectra)")
@@ -21,9 +23,14 @@ def add_arguments(p):
 
 def run(args):
     from .._analyses.scaling import fit_scaling
+    from ._cellfit import is_cell_series, read_all, run_cells
 
     overrides = {"spectrum": True} if args.spectrum_report else {}
-    prof = read_input(args.file, args, **overrides)
+    profiles = read_all(args) if len(args.file) > 1 else [read_input(args.file[0], args,
+                                                                     **overrides)]
+    if is_cell_series(profiles):
+        return run_cells(args, profiles)
+    prof = profiles[0]
     res = fit_scaling(prof, **fit_options(args), local_dim=args.local_dim,
                       spectrum_report=args.spectrum_report, degeneracy_tol=args.degeneracy_tol)
     equipartition = _equipartition(prof, args)

@@ -9,7 +9,7 @@ ORDER = 1
 def add_arguments(p):
     p.add_argument("file", metavar="FILE", help="HDF5 checkpoint")
     p.add_argument("--json", action="store_true", help="print the findings as JSON")
-    add_flags(p, *LAYOUT_FLAGS, "route", "precision", "charges", "modulus")
+    add_flags(p, *LAYOUT_FLAGS, "route", "precision", "charges", "modulus", "disentangle")
 
 
 def run(args):

@@ -1,6 +1,6 @@
 """`bondscope plot`: draw a figure of one or more profiles (PNG, SVG or PDF)."""
 
-from ._common import (FIT_FLAGS, LAYOUT_FLAGS, UsageError, add_flags, fit_options,
+from ._common import (FIT_FLAGS, LAYOUT_FLAGS, RUN_FLAGS, UsageError, add_flags, fit_options,
                       profile_options)
 
 HELP = "draw a figure of profiles: entropy, spectrum, budget, heatmap, convergence, sectors, ..."
@@ -57,8 +57,8 @@ def add_arguments(p):
         g.add_argument(*flags, dest=dest, **kw)
     g.add_argument("--no-fit", action="store_true",
                    help="entropy: curves only, no central-charge fit or residual panel")
-    add_flags(p, *FIT_FLAGS, *LAYOUT_FLAGS, "renyi", "base", "charges", "modulus", "parity",
-              "quiet")
+    add_flags(p, *FIT_FLAGS, *LAYOUT_FLAGS, *RUN_FLAGS, "renyi", "base", "charges", "modulus",
+              "disentangle", "parity", "quiet")
 
 
 def fit_choice(args):

@@ -12,7 +12,7 @@ import warnings
 from pathlib import Path
 
 from .._errors import CheckpointError, one_line
-from .._runinfo import RUN_ATTRS, run_attributes
+from .._runinfo import RUN_ATTRS, attribute_names, run_attributes
 from .._text import natural_key
 from ._names import figure_text, visible
 
@@ -304,7 +304,7 @@ def entries_of_rows(rows, spectrum=False):
             notes.append(f"{visible(r['source'])}: left out, its profile cannot be read "
                          f"({visible(one_line(exc))})")
             continue
-        meta = run_attributes(r["source"])
+        meta = run_attributes(r.get("checkpoint") or r["source"])  # resolved path if known
         meta.update(_profile_meta(prof))
         meta.update({k: r[k] for k in _ROW_KEYS if r.get(k) is not None})
         entries.append(_needs_spectra(_entry(label, prof, r["profile"], meta, r["source"]),
@@ -341,7 +341,8 @@ def input_files(sources):
                 except (OSError, CheckpointError):
                     continue
                 found += index.files + [Path(r[k]) for r in index.rows
-                                        for k in ("source", "profile") if r.get(k)]
+                                        for k in ("source", "checkpoint", "profile")
+                                        if r.get(k)]
             else:
                 found.append(path)
     return found
@@ -431,7 +432,7 @@ def _path_entry(path, spectrum, options):
     from .._pipeline import profile
 
     prof = profile(path, options, **({"spectrum": True} if spectrum else {}))
-    meta = run_attributes(path)
+    meta = run_attributes(path, rename=attribute_names(options))
     meta.update(_profile_meta(prof))
     return _entry(path.stem, prof, str(path), meta, str(path))
 

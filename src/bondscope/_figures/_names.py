@@ -8,36 +8,11 @@ or the report shows goes through :func:`visible` (and, in figures,
 :func:`figure_text`).
 """
 
-import unicodedata
 from pathlib import Path
 
+from .._text import visible
+
 __all__ = ["visible", "figure_text", "shortened"]
-
-# control, format (bidi overrides and isolates, zero-width marks), line and paragraph
-# separators, and lone surrogates (undecodable bytes of a file name)
-_HIDDEN = frozenset({"Cc", "Cf", "Zl", "Zp", "Cs"})
-
-
-def _mark(ch):
-    code = ord(ch)
-    if 0xDC80 <= code <= 0xDCFF:  # a byte that was not UTF-8 (surrogateescape)
-        return f"<0x{code - 0xDC00:02X}>"
-    return f"<U+{code:04X}>"
-
-
-def visible(text):
-    """``text`` with every invisible or reordering character spelled out as <U+XXXX>.
-
-    Examples
-    --------
-    >>> visible("run\\u202e5h.h5"), visible("tab\\there"), visible("plain name.h5")
-    ('run<U+202E>5h.h5', 'tab<U+0009>here', 'plain name.h5')
-    """
-    text = str(text)
-    if text.isprintable():
-        return text
-    return "".join(_mark(ch) if unicodedata.category(ch) in _HIDDEN else ch for ch in text)
-
 
 def figure_text(name):
     """A name as matplotlib text: :func:`visible`, with ``$`` shown as a dollar sign.

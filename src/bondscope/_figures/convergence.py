@@ -52,7 +52,7 @@ def _limit(members, x):
     fit = result["extrapolation"]
     if fit is None:
         raise ValueError(f"no extrapolation: {result['extrapolation_note']}")
-    middle = members[0][0].profile.sites // 2
+    middle = _middle_position(members[0][0].profile)
     if middle not in result["positions"]:
         raise ValueError(f"no common cut at the middle position {middle}")
     at = result["positions"].index(middle)
@@ -174,12 +174,17 @@ def _run_labels(ax, marks):
                         color=INK)
 
 
+def _middle_position(prof):
+    """The middle cut; a one-site unit cell's only bond (position 1)."""
+    return max(prof.sites // 2, 1)
+
+
 def _middle(entry):
     prof = entry.profile
-    at = np.flatnonzero(prof.positions == prof.sites // 2)
+    at = np.flatnonzero(prof.positions == _middle_position(prof))
     if at.size == 0:
         raise ValueError(f"{visible(entry.label)}: no cut at the middle position "
-                         f"{prof.sites // 2}")
+                         f"{_middle_position(prof)}")
     return float(prof.entropies[at[0]])
 
 

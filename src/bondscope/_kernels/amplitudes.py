@@ -10,6 +10,7 @@ import numpy as np
 
 from .._errors import CheckpointError
 from .._measure import resolution_floor
+from .._source import source_eps
 from .linalg import SweepResult, normalised
 from .truncation import state_truncation
 
@@ -171,7 +172,9 @@ def amplitude_spectra(src, *, route="auto", bond_dim=None, weight_tol=None, tick
         spectra, sizes = _gram_spectra(psi, src.local_dims, src.name, 1.0 / norm**2)
     else:
         spectra, sizes = _svd_spectra(psi, src.local_dims, src.name)
-    floors = [resolution_floor(s, route, n) for s, n in zip(spectra, sizes)]
+    eps = float(np.finfo(src.compute_dtype).eps)
+    floors = [resolution_floor(s, route, n, eps=eps, data_eps=source_eps(src))
+              for s, n in zip(spectra, sizes)]
     if tick:
         tick(len(spectra))
     infid = None

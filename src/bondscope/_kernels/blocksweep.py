@@ -21,6 +21,7 @@ from contextlib import contextmanager
 
 import numpy as np
 
+from .conditioning import block_norms, bond_norm
 from .linalg import r_factor, svdvals
 from .parallel import blas_threads
 
@@ -231,7 +232,7 @@ def sector_pool():
             yield lambda f, items: list(ex.map(f, items))
 
 
-def block_chain(leftward, rightward, first, last, n, store, tick, dtype):
+def block_chain(leftward, rightward, first, last, n, store, tick, dtype, ledger):
     """Charge-resolved Schmidt values of every cut from block-wise sweeps.
 
     Parameters
@@ -249,6 +250,9 @@ def block_chain(leftward, rightward, first, last, n, store, tick, dtype):
         Called once per site tensor processed.
     dtype : numpy dtype
         Compute dtype.
+    ledger : GaugeLedger
+        Receives the norms of the blocks and bond matrices met
+        (:mod:`.conditioning`), from which the floors are bounded.
 
     Returns
     -------
@@ -281,6 +285,7 @@ def block_chain(leftward, rightward, first, last, n, store, tick, dtype):
             if env is None:
                 env = {last(): np.ones((1, 1), dtype=dtype)}
             env = _run(pool, _lq_sector, _by_sector(blocks, env, left=True))
+            ledger.right_norms(i, block_norms(blocks)[1], bond_norm(env))
             if i > 0:
                 env_keys[i] = list(env)
                 for j, q in enumerate(env_keys[i]):
@@ -290,6 +295,7 @@ def block_chain(leftward, rightward, first, last, n, store, tick, dtype):
         cuts = []
         for i, blocks in rightward:
             r = _run(pool, _qr_sector, _by_sector(blocks, r, left=False))
+            ledger.left_norms(i, block_norms(blocks)[0], bond_norm(r))
             tick()
             if i == n - 1:
                 break

@@ -12,7 +12,8 @@ from concurrent.futures import ThreadPoolExecutor
 
 import numpy as np
 
-from .._measure import resolution_floor
+from .._source import source_eps
+from .conditioning import GaugeLedger, gauge_floors
 from .linalg import SweepResult, normalised, r_factor, svdvals
 from .parallel import dask_client, gathered, lanes, locked
 from .store import BondStore
@@ -57,7 +58,7 @@ def qr_step(r, a):
     return r_factor(out.reshape(c, d * k).T)
 
 
-def _sequential_chain(src, store, tick, values, bond_dim=None, weight_tol=None):
+def _sequential_chain(src, store, tick, values, ledger, bond_dim=None, weight_tol=None):
     """Singular values of R_i L_i per cut, right-to-left sweep then left-to-right sweep.
 
     With ``bond_dim`` or ``weight_tol``, the left-to-right sweep also compresses
@@ -67,7 +68,9 @@ def _sequential_chain(src, store, tick, values, bond_dim=None, weight_tol=None):
     track = bond_dim is not None or weight_tol is not None
     env = np.ones((1, 1), dtype=src.compute_dtype)
     for i in range(n - 1, 0, -1):
-        env = lq_step(src.tensor(i), env)
+        a = src.tensor(i)
+        env = lq_step(a, env)
+        ledger.right(i, a, env)
         store.put(f"L{i}", env)
         tick()
     raw, eps = [], []
@@ -81,6 +84,7 @@ def _sequential_chain(src, store, tick, values, bond_dim=None, weight_tol=None):
             w = u.conj().T @ block
             eps.append(e)
         r = qr_step(r, a)
+        ledger.left(i, a, r)
         raw.append(values(r, env))
         tick()
     return raw, eps
@@ -112,7 +116,7 @@ def _until_failure(job, stop):
         raise
 
 
-def _concurrent_chain(src, store, tick, values):
+def _concurrent_chain(src, store, tick, values, ledger):
     """The two sweeps of :func:`_sequential_chain` run side by side, one per thread.
 
     Neither sweep needs the other's results, so both start at once, the
@@ -132,7 +136,9 @@ def _concurrent_chain(src, store, tick, values):
         for i in range(n - 1, 0, -1):
             if stop.is_set():
                 return
-            env = lq_step(src.tensor(i), env)
+            a = src.tensor(i)
+            env = lq_step(a, env)
+            ledger.right(i, a, env)
             waiting = meet(i, "L", env)
             if waiting is not None:
                 raw[i - 1] = values(waiting, env)
@@ -143,7 +149,9 @@ def _concurrent_chain(src, store, tick, values):
         for i in range(n - 1):
             if stop.is_set():
                 return
-            r = qr_step(r, src.tensor(i))
+            a = src.tensor(i)
+            r = qr_step(r, a)
+            ledger.left(i, a, r)
             waiting = meet(i + 1, "R", r)
             if waiting is not None:
                 raw[i] = values(r, waiting)
@@ -182,8 +190,13 @@ def chain_spectra(src, *, bond_dim=None, weight_tol=None, scratch=None, tick=Non
     QR factorisations gives R_i with psi = P_i R_i [...], P_i an isometry.  The
     Schmidt values at cut i are the singular values of R_i L_i, so no canonical
     form is assumed and any gauge gives the same spectra.  Every factorisation
-    is orthogonal, hence backward stable: values are resolved to about
-    eps * chi * lambda_max.
+    is orthogonal, hence backward stable, so in a near-canonical gauge values
+    are resolved to about eps * chi * lambda_max; the products feeding them
+    are not, and a gauge G far from canonical makes their rounding grow as
+    eps cond(G)^2 at every cut.  The sweeps record the norms they multiply
+    (:class:`.conditioning.GaugeLedger`, O(d chi^2) per site) and each cut's
+    floor bounds that rounding too, at the coarser of the stored and compute
+    precisions; a ResolutionWarning says when it exceeds sqrt(eps).
 
     Work per site: two products with a bond matrix, two QR factorisations and
     one values-only SVD of a chi x chi matrix; O(N d chi^3) in all.  Every
@@ -217,16 +230,18 @@ def chain_spectra(src, *, bond_dim=None, weight_tol=None, scratch=None, tick=Non
     track = bond_dim is not None or weight_tol is not None
     tick = locked(tick)
     values = _bond_values(dask_client())
+    ledger = GaugeLedger(src.sites)
     with BondStore(scratch) as store, lanes() as count:
         if track or count < 2:
-            raw, eps = _sequential_chain(src, store, tick, values, bond_dim, weight_tol)
+            raw, eps = _sequential_chain(src, store, tick, values, ledger, bond_dim, weight_tol)
         else:
-            raw, eps = _concurrent_chain(src, store, tick, values), []
+            raw, eps = _concurrent_chain(src, store, tick, values, ledger), []
     raw = gathered(raw)
-    spectra, floors, norm = [], [], None
-    for i, s in enumerate(raw):
+    spectra, norm = [], None
+    for s in raw:
         s, total = normalised(s, src.name)
         norm = total if norm is None else norm
         spectra.append(s)
-        floors.append(resolution_floor(s, "svd", max(s.size, 1) * src.shapes[i][1]))
+    sizes = [max(s.size, 1) * src.shapes[i][1] for i, s in enumerate(spectra)]
+    floors = gauge_floors(spectra, sizes, ledger.factors(norm), source_eps(src), src.name)
     return SweepResult(spectra, floors, norm, "qr-sweep", infidelity(eps) if track else None)

@@ -42,8 +42,7 @@ def _sector(task):
 
 
 def _label_step(pool, r, labels, a, site, env, charges):
-    """One step: the cut's sector values, the next (R, labels), the dropped weight and the
-    gauge factor ||M||_F ||L||_F / ||B||_F."""
+    """One step: the cut's sector values, the next (R, labels) and the dropped weight."""
     c = a.shape[2]
     tasks = {}
     for qs, states in charge_groups(site).items():
@@ -76,10 +75,10 @@ def _label_step(pool, r, labels, a, site, env, charges):
     r = np.vstack(blocks) if blocks else np.zeros((0, c), dtype=env.dtype)
     labels = np.array(new_labels, dtype=np.int64).reshape(-1, charges.quantities)
     cut = [(q, s) for (q, *_), s in zip(parts, values)]
-    return cut, r, labels, (max(dropped, 0.0) / total if total > 0 else 0.0), gauge
+    return cut, r, labels, (max(dropped, 0.0) / total if total > 0 else 0.0)
 
 
-def labelled_chain(src, charges, store, tick):
+def labelled_chain(src, charges, store, tick, ledger):
     """Charge-resolved Schmidt values of every cut of a dense MPS in any gauge.
 
     Parameters
@@ -92,6 +91,8 @@ def labelled_chain(src, charges, store, tick):
         Holds the right-to-left sweep's bond matrices.
     tick : callable
         Called once per site tensor processed.
+    ledger : GaugeLedger
+        Receives the norms of the matrices the sweeps multiply (:mod:`.conditioning`).
 
     Returns
     -------
@@ -101,9 +102,6 @@ def labelled_chain(src, charges, store, tick):
     dropped : float
         Largest relative weight dropped at one cut (rounding-level for an
         eigenstate of the total charge).
-    gauges : list of float
-        Per cut, ||M||_F ||L||_F / ||B||_F (>= 1): the rounding of the cut's
-        products is at most eps * n * this (relative), n the matrix size.
     totals : dict
         Weight of the state per total charge (keys), from the last site.
 
@@ -129,19 +127,21 @@ def labelled_chain(src, charges, store, tick):
     env = np.ones((1, 1), dtype=src.compute_dtype)
     with lanes():                   # the plain engine's threads per sweep (half, from 2 up)
         for i in range(n - 1, 0, -1):
-            env = lq_step(src.tensor(i), env)
+            a = src.tensor(i)
+            env = lq_step(a, env)
+            ledger.right(i, a, env)
             store.put(f"L{i}", env)
             tick()
     r = np.ones((1, 1), dtype=src.compute_dtype)
     labels = np.zeros((1, charges.quantities), dtype=np.int64)
-    cuts, dropped, gauges = [], 0.0, []
+    cuts, dropped = [], 0.0
     with sector_pool() as pool:
         for i in range(n - 1):
-            cut, r, labels, lost, gauge = _label_step(pool, r, labels, src.tensor(i),
-                                                      charges.sites[i],
-                                                      store.pop(f"L{i + 1}"), charges)
+            a = src.tensor(i)
+            cut, r, labels, lost = _label_step(pool, r, labels, a, charges.sites[i],
+                                               store.pop(f"L{i + 1}"), charges)
+            ledger.left(i, a, r)
             cuts.append(cut)
-            gauges.append(gauge)
             dropped = max(dropped, lost)
             tick()
     a = src.tensor(n - 1)
@@ -153,4 +153,4 @@ def labelled_chain(src, charges, store, tick):
     for row, wt in zip(map(tuple, rows.tolist()), weights):
         totals[row] = totals.get(row, 0.0) + float(wt)
     tick()
-    return cuts, dropped, gauges, totals
+    return cuts, dropped, totals

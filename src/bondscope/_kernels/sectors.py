@@ -35,7 +35,9 @@ import numpy as np
 
 from .._errors import CheckpointError
 from .._measure import resolution_floor, spectrum_measures
+from .._source import source_eps
 from .blocksweep import charge_groups
+from .conditioning import GaugeLedger, warn_large_floor
 
 __all__ = ["SectorResult", "charge_spectra", "sector_measures", "leak_tolerance",
            "sector_document", "block_estimate", "CHARGE_SWEEP_WORK"]
@@ -200,7 +202,9 @@ def amplitude_sectors(src, charges, *, leak_tol=None, tick=None):
     cuts, _ = _normalised_cuts(raw, src.name)
     norm = math.sqrt(float(np.vdot(psi, psi).real))
     result = SectorResult(cuts, [], total, leak, norm, "sector-svd")
-    result.floors = [max(resolution_floor(s, "svd", n), math.sqrt(leak))
+    eps = float(np.finfo(src.compute_dtype).eps)
+    result.floors = [max(resolution_floor(s, "svd", n, eps=eps, data_eps=source_eps(src)),
+                         math.sqrt(leak))
                      for s, n in zip(result.spectra, sizes)]
     return result
 
@@ -297,10 +301,12 @@ def chain_sectors(src, charges, *, scratch=None, leak_tol=None, tick=None, route
     a few site tensors plus the bond matrices in a store that keeps those of
     16 bonds (at most 32 MiB) in memory and spills the rest to ``scratch``,
     independent of N.  Floors: eps times n = d max(chi_left, chi_right) of the
-    site left of the cut times lambda_max; for the charge sweep at least eps n
-    times the largest ||M||_F ||L||_F / ||B||_F over the cuts (the rounding of
-    its products, which a gauge far from canonical enlarges and which stays in
-    the state once made; about sqrt(chi) in a canonical gauge).
+    site left of the cut times lambda_max, and at least eps sqrt(n) times the
+    cut's conditioning factor (:class:`.conditioning.GaugeLedger`: the rounding
+    of every product along both sweeps, which a gauge far from canonical
+    enlarges as cond(G)^2 and which stays in the state once made); the charge
+    sweep accepts a weight outside the total charge up to the square of that
+    rounding, and folds it into the floors as sqrt(leak).
     """
     from .blocksweep import NotBlockStructured, block_chain, dense_blocks
     from .labelsweep import labelled_chain
@@ -309,13 +315,14 @@ def chain_sectors(src, charges, *, scratch=None, leak_tol=None, tick=None, route
     tick = tick or (lambda: None)
     n, dtype = src.sites, src.compute_dtype
     tol = leak_tolerance(src.dtype) if leak_tol is None else leak_tol
-    budget, gauges = _store_budget(src), None
+    budget, ledger, totals = _store_budget(src), GaugeLedger(n), None
     if hasattr(src, "blocks"):
         with BondStore(scratch, budget) as store:
             raw, first, last = block_chain(
                 ((i, src.blocks(i)) for i in range(n - 1, -1, -1)),
                 ((i, src.blocks(i)) for i in range(n)),
-                lambda: src.first_charge, lambda: src.last_charge, n, store, tick, dtype)
+                lambda: src.first_charge, lambda: src.last_charge, n, store, tick, dtype,
+                ledger)
         route, leak = "block-sweep", 0.0
     else:
         try:
@@ -325,26 +332,29 @@ def chain_sectors(src, charges, *, scratch=None, leak_tol=None, tick=None, route
             with BondStore(scratch, budget) as store:
                 raw, first, last = block_chain(
                     leftward, rightward, lambda: charges.key(bonds[0][0]),
-                    lambda: charges.key(bonds[n][0]), n, store, tick, dtype)
+                    lambda: charges.key(bonds[n][0]), n, store, tick, dtype, ledger)
             route, leak = "block-sweep", 0.0
         except NotBlockStructured:
+            ledger = GaugeLedger(n)
             with BondStore(scratch, budget) as store:
-                raw, dropped, gauges, totals = labelled_chain(src, charges, store, tick)
-            total, outside = _refuse(src.name, totals, charges, tol)
-            route, leak = "charge-sweep", outside + dropped
+                raw, dropped, totals = labelled_chain(src, charges, store, tick, ledger)
+            route = "charge-sweep"
     if route == "block-sweep":
         raw = [sorted((charges.key(charges.sub(q, first)), v) for q, v in cut)
                for cut in raw]
         total = charges.key(charges.sub(last, first))
     cuts, norm = _normalised_cuts(raw, src.name)
+    eps = source_eps(src)
+    sizes = [max(src.shapes[i][0], src.shapes[i][2]) * src.shapes[i][1] for i in range(n - 1)]
+    rounding = eps * np.sqrt(sizes) * ledger.factors(norm)
+    if totals is not None:
+        # rounding leaks weight out of the total charge: up to the square of its bound
+        total, outside = _refuse(src.name, totals, charges, max(tol, float(rounding.max()) ** 2))
+        leak = outside + dropped
     result = SectorResult(cuts, [], total, leak, norm, route)
-    eps = float(np.finfo(np.dtype(dtype)).eps)
-    worst = max(gauges) if route == "charge-sweep" else 0.0
-    result.floors = []
-    for i, s in enumerate(result.spectra):
-        size = max(src.shapes[i][0], src.shapes[i][2]) * src.shapes[i][1]
-        gauge = eps * size * worst             # rounding made at any cut stays in the state
-        result.floors.append(max(resolution_floor(s, "svd", size), gauge, math.sqrt(leak)))
+    result.floors = [max(resolution_floor(s, "svd", size, eps=eps), float(g), math.sqrt(leak))
+                     for s, size, g in zip(result.spectra, sizes, rounding)]
+    warn_large_floor(rounding, eps, src.name)
     return result
 
 
@@ -398,10 +408,11 @@ def sector_measures(sectors, floor, charges, *, renyi=(), base=math.e):
 
     Notes
     -----
-    The entropies use every value of a sector (also those below its floor),
-    so number + configurational entropy equals the entropy of the whole
-    spectrum to rounding.  Sectors without a value above the floor are not
-    listed; their weight is below rank times floor^2.
+    The entropies use the values above the floor, as the whole cut's do, so
+    number + configurational entropy equals the cut's entropy to within the
+    weight under the floor (at most the unresolved count times floor^2).
+    Sectors without a value above the floor are not listed; their weight is
+    below rank times floor^2.
     """
     scale = 1.0 / math.log(base)
     listed, number, conf = [], 0.0, 0.0
