@@ -20,8 +20,8 @@
 #   sbatch --dependency=afterany:<array job id> --cpus-per-task=1 --export=ALL,INPUTS=...,OUT=... \
 #          --wrap 'bondscope batch "$INPUTS" --out "$OUT" --workers 1 --quiet --renyi 2,inf --bond-dim 64'
 #
-# The exit status of a task is its number of failed checkpoints (capped at 100),
-# so SLURM marks a task with failures FAILED; see summary.shard-I-of-N.csv.
+# A task with failed checkpoints exits with status 5, so SLURM marks it FAILED;
+# their count ends its log, their rows are in summary.shard-I-of-N.csv.
 
 #SBATCH --job-name=bondscope-batch
 #SBATCH --array=0-7

@@ -25,7 +25,10 @@ def spectra_doc(spectra, *, local_dims=None, **top):
 
 
 def geometric(q, K):
-    """Schmidt values with weights q^k / sum, k = 0..K-1 (tail after chi: (q^chi - q^K)/(1 - q^K))."""
+    """Schmidt values with weights q^k / sum, k = 0..K-1.
+
+    The tail after chi is (q^chi - q^K)/(1 - q^K).
+    """
     w = q ** np.arange(K)
     return np.sqrt(w / w.sum())
 
@@ -170,7 +173,7 @@ def test_budget_errors(kwargs, match):
     # squares sum to 1.25: not a normalised state
     (spectra_doc([[1.0, 0.5]]), "sum to 1.25"),
     # top-2 list leaving 0.2 cannot reach 1e-3
-    (spectra_doc([np.sqrt([0.5, 0.3])]), "leave weight 0.2"),
+    (spectra_doc([np.sqrt([0.5, 0.3])]), "weight left out 0.2"),
 ])
 def test_budget_rejects_unusable_spectra(d, match):
     with pytest.raises(ValueError, match=match):

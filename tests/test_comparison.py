@@ -76,16 +76,33 @@ def test_convergence_verdict(runs, tol_scale, converged):
     assert res["tol"] == tol_scale * last
 
 
-def test_extrapolation_matches_a_least_squares_line(runs):
-    res = compare_profiles(runs)
+def test_extrapolation_brackets_the_exact_state(runs):
+    # the truncated runs alone (chi = 2, 4, 8): every cut's error bar covers the exact
+    # entropies of the untruncated state (chi = 32, numpy SVD of each cut as reference)
+    res = compare_profiles(runs[:3])
     ext = res["extrapolation"]
-    assert ext["weight_sources"] == ["discarded_weight"] * 4
-    S = np.array(res["entropies"])
-    w = np.array([r["discarded_weight"] for r in runs])
-    for j in range(S.shape[1]):
-        slope, intercept = np.polyfit(w, S[:, j], 1)  # numpy's polynomial fit as reference
-        assert ext["entropies"][j] == pytest.approx(intercept, rel=1e-9, abs=1e-12)
-        assert ext["slopes"][j] == pytest.approx(slope, rel=1e-9, abs=1e-12)
+    exact = [c["entropy"] for c in runs[3]["cuts"]]
+    assert ext["weight_sources"] == ["discarded_weight"] * 3 and ext["form"] == "wlogw"
+    for value, error, truth in zip(ext["entropies"], ext["errors"], exact):
+        assert abs(value - truth) <= error
+    # with the exact run (weight 0) in the series, its entropies are the answer
+    res = compare_profiles(runs)
+    assert res["extrapolation"]["methods"] == ["exact run"] * len(exact)
+    assert res["extrapolation"]["entropies"] == pytest.approx(exact, abs=1e-12)
+
+
+@pytest.mark.parametrize("form", ["linear", "wlogw"])
+def test_weighted_fit_matches_numpy(form):
+    # numpy's weighted polynomial fit in g(w) as reference
+    from bondscope._analyses.extrapolation import correction
+
+    w = np.array([1e-2, 3e-3, 1e-3, 2e-4])
+    S = 0.7 - 3.0 * correction(w, form) + np.array([1e-5, -2e-6, 1e-6, 0.0])
+    sigma = correction(w, form)
+    fit = extrapolate(w, S, form=form, sigma=sigma)
+    slope, intercept = np.polyfit(correction(w, form), S, 1, w=1.0 / sigma)
+    assert fit.value == pytest.approx(intercept, rel=1e-10)
+    assert fit.slope == pytest.approx(slope, rel=1e-8)
 
 
 def test_per_cut_weights_take_precedence(runs):
@@ -95,10 +112,9 @@ def test_per_cut_weights_take_precedence(runs):
             c["discarded_weight"] = 0.1 * (2 - k)
     res = compare_profiles(docs)
     assert res["extrapolation"]["weight_sources"] == ["cuts.discarded_weight"] * 2
-    # two runs: the line through both points, read at w = 0
-    S = np.array(res["entropies"])
-    assert res["extrapolation"]["entropies"][4] == pytest.approx(2 * S[1, 4] - S[0, 4])
-    assert res["extrapolation"]["errors"][4] is None
+    # equal weights at every cut of a run: the weights alone say nothing about the ends
+    assert set(res["extrapolation"]["methods"]) <= {"fit", "not asymptotic", "converged"}
+    assert all(e > 0 for e in res["extrapolation"]["errors"])
 
 
 def test_what_if_truncation_fields_are_not_the_runs_weight(runs):

@@ -34,6 +34,8 @@ def _profile(name):
         "cluster": lambda: states.cluster(6),
         # GHZ on qutrits: three equal weights (common practice)
         "ghz3": lambda: states.ghz(5, d=3),
+        # GHZ on qubits: two equal weights, evenly degenerate without any protected phase
+        "ghz2": lambda: states.ghz(5, d=2),
         # W state: weights l/N and (N-l)/N (common practice)
         "w": lambda: states.w_state(4),
         # product state: rank one everywhere
@@ -47,6 +49,7 @@ PATTERNS = [
     ("aklt", [2], 0.0, True),
     ("cluster", [2], 0.0, True),
     ("ghz3", [3], 0.0, False),
+    ("ghz2", [2], 0.0, True),               # even_degeneracy is necessary, not sufficient
     ("w", [1, 1], math.log(3), False),      # -ln(1/4) - (-ln(3/4)) = ln 3
     ("product", [1], None, False),          # one level: no gap
 ]
@@ -139,3 +142,36 @@ def test_fit_spectrum_report_cli(tmp_path, capsys):
     assert diag["all_even"] and diag["cuts"][2]["degeneracies"] == [2]
     assert main(["fit", str(path), "--spectrum-report"]) == 0
     assert "evenly degenerate at 7 of 7 cuts" in capsys.readouterr().out
+
+
+def _noisy_multiplets(split):
+    """Weights of a spin-1-like spectrum: doublets at 0.45, 0.04, 0.01 and one at 6e-12
+    split by an eigensolver's own error (relative ``split``)."""
+    w = np.array([0.45, 0.45, 0.04, 0.04, 0.01, 0.01 - 1.2e-11,
+                  6e-12 * (1 + split), 6e-12 * (1 - split)])
+    return np.sqrt(w / w.sum())
+
+
+# split multiplets at the solver's accuracy are not judged; asked to, they break the pattern
+SOLVER_NOISE = [
+    (0.3, None, True),      # default accuracy 1e-10: the 6e-12 pair is below it, left out
+    (0.3, 0.0, False),      # exact data claimed: the split pair is two levels
+    (0.0, 0.0, True),       # no split at all
+    (0.3, 1e-11, True),     # accuracy given: the pair sits within 2 accuracy / lambda^2
+]
+
+
+@pytest.mark.parametrize("split, accuracy, even", SOLVER_NOISE)
+def test_degeneracy_tolerance_follows_the_data_accuracy(split, accuracy, even):
+    doc = spectra_doc([_noisy_multiplets(split)] * 3)
+    kwargs = {} if accuracy is None else {"accuracy": accuracy,
+                                          "weight_floor": 1e-13 if accuracy == 1e-11 else 0.0}
+    res = spectrum_diagnostics(doc, **kwargs)
+    assert res["all_even"] is even
+    assert res["accuracy"] == (1e-10 if accuracy is None else accuracy)
+
+
+def test_run_discarded_weight_sets_the_accuracy():
+    doc = spectra_doc([_noisy_multiplets(0.3)] * 3)
+    doc["max_discarded_weight"] = 1e-8
+    assert spectrum_diagnostics(doc)["accuracy"] == 1e-8

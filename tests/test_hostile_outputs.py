@@ -232,6 +232,27 @@ def test_virtual_dataset_sources(tmp_path, capsys, change, words):
     assert str(source) in one_line_error(capsys)
 
 
+@pytest.mark.parametrize("missing", [False, True])
+def test_block_sparse_checkpoint_with_a_virtual_dataset(tmp_path, missing):
+    import blockdata
+
+    from bondscope._blocksparse import open_blocks
+
+    path = blockdata.example_files(tmp_path)["blocks"]
+    layout = h5py.VirtualLayout(shape=(4,), dtype="f8")
+    layout[:] = h5py.VirtualSource("notes.h5", "x", shape=(4,))
+    with h5py.File(path, "a") as f:
+        f.create_virtual_dataset("notes", layout, fillvalue=0.0)
+    if not missing:
+        with h5py.File(tmp_path / "notes.h5", "w") as f:
+            f["x"] = np.zeros(4)
+        with open_blocks(path, charges="0,1") as src:
+            assert src.sites == 8  # the block-sparse chain itself is read as ever
+        return
+    with pytest.raises(CheckpointError, match="virtual dataset /notes: source file"):
+        open_blocks(path, charges="0,1")
+
+
 @pytest.mark.parametrize("link, edit, same", [
     ("vds", None, True),  # nothing changed: the result is still valid
     ("vds", "rewrite-source", False),  # the VDS source changed: redo (was skipped before)
@@ -398,6 +419,36 @@ def test_stuck_checkpoint_is_a_failed_row(tmp_path, monkeypatch):
     assert status["stuck.h5"][1].startswith("TimeLimit: still running after the time limit")
 
 
+def hung_reads(tmp_path, monkeypatch, block_alarm=False):
+    """Worker processes whose reads of files named stuck*.h5 never return (a hung network
+    file system), from a sitecustomize module they import at start-up; with
+    ``block_alarm`` they never see their alarm either (uninterruptible code)."""
+    site = tmp_path / "site"
+    site.mkdir()
+    code = ["import builtins, os, signal, time", "_open = builtins.open",
+            "def _hung(file, *args, **kwargs):",
+            "    if os.path.basename(str(file)).startswith('stuck'):",
+            "        time.sleep(3600)",
+            "    return _open(file, *args, **kwargs)",
+            "builtins.open = _hung"]
+    if block_alarm:
+        code.append("signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGALRM})")
+    (site / "sitecustomize.py").write_text("\n".join(code) + "\n")
+    monkeypatch.setenv("PYTHONPATH", os.pathsep.join(filter(None, [
+        str(site), os.environ.get("PYTHONPATH")])))
+
+
+def test_stuck_read_is_stopped_by_its_worker(tmp_path, monkeypatch):
+    # a read that never returns, inside the profiling: the worker's own alarm stops it
+    hung_reads(tmp_path, monkeypatch)
+    good, stuck = checkpoint(tmp_path / "good.h5"), checkpoint(tmp_path / "stuck.h5")
+    summary = run_batch([good, stuck], tmp_path / "out", workers=1, threads=1, time_limit=1.0)
+    status = {Path(r["source"]).name: (r["status"], r["error"]) for r in summary.rows}
+    assert status["good.h5"] == ("done", None)
+    assert status["stuck.h5"][0] == "failed"
+    assert status["stuck.h5"][1].startswith("TimeLimit: still running after the time limit")
+
+
 # --- output files: temporary files, errors, concurrent writers ------------------------------
 
 def test_stale_parts_by_name_and_age(tmp_path):
@@ -478,6 +529,19 @@ def test_run_attribute_names(tmp_path, options, found):
     assert {k: got[k] for k in found} == found and set(found) <= set(got)
 
 
+@pytest.mark.parametrize("rename, meta", [
+    (None, {"time": 0.5}),  # default names: no max_discarded_weight attribute
+    ({"max_discarded_weight": "trunc_err", "time": "t"},
+     {"time": 2.5, "max_discarded_weight": 1e-9}),  # the batch's names reach the comparison
+    ({"time": "label"}, {}),  # a text time is left out
+])
+def test_series_comparison_reads_the_batch_names(tmp_path, rename, meta):
+    from bondscope._batch.summaries import _run_meta
+
+    path = checkpoint(tmp_path / "ck.h5", time=0.5, t=2.5, trunc_err=1e-9, label="x")
+    assert _run_meta(path, rename) == meta
+
+
 @pytest.mark.parametrize("kwargs, error", [
     ({"bond_dim_attr": 16}, TypeError),  # a number is not an attribute name
     ({"bond_dim_atr": "chi"}, TypeError),  # misspelt: unknown option
@@ -534,3 +598,16 @@ def test_report_and_shards_verified(hostile_batch, tmp_path, capsys):
     assert main(["report", str(summary.out), "-o", str(target)]) == 2  # never over an input
     assert "refusing to write over" in capsys.readouterr().err
     assert target.read_bytes() == before
+
+
+@pytest.mark.slow
+def test_unstoppable_checkpoint_is_killed(tmp_path, monkeypatch):
+    # the pool kills workers that do not stop at their alarm, after the hard limit; the
+    # checkpoints of the other workers killed with them are given out again
+    hung_reads(tmp_path, monkeypatch, block_alarm=True)
+    paths = [checkpoint(tmp_path / n) for n in ("a.h5", "stuck.h5", "b.h5")]
+    summary = run_batch(paths, tmp_path / "out", workers=2, threads=1, time_limit=1.0)
+    status = {Path(r["source"]).name: r["status"] for r in summary.rows}
+    assert status == {"a.h5": "done", "stuck.h5": "failed", "b.h5": "done"}
+    failed = next(r for r in summary.rows if r["status"] == "failed")
+    assert failed["error"].startswith("TimeLimit: ")

@@ -262,7 +262,7 @@ def test_fit_cli(extra, code, message, saved, capsys):
 def test_fit_cli_text_output(saved, capsys):
     assert main(["fit", str(saved(doc(exact("xx", 200, "open"), 200)))]) == 0
     out = capsys.readouterr().out
-    assert out.startswith("central charge  0.99") and "scaling law     logarithmic" in out
+    assert out.startswith("scaling law     logarithmic") and "central charge  0.99" in out
 
 
 def test_fit_cli_in_a_subprocess(saved):

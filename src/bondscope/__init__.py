@@ -37,6 +37,7 @@ write_report       -- one self-contained HTML page for a batch results directory
 Analyses
 --------
 fit_scaling          -- central charge, constant and scaling law (Calabrese-Cardy fit)
+ScalingFit           -- the typed result of fit_scaling (law, c and its error parts, saturation)
 bond_budget          -- smallest bond dimension per cut for an error target, and its cost
 compare_profiles     -- per-cut differences, convergence and extrapolation over runs
 spectrum_diagnostics -- entanglement gap and degeneracy pattern per cut
@@ -52,6 +53,7 @@ CheckpointError  -- a checkpoint or profile that cannot be read as it stands
 MemoryLimitError -- work refused by the pre-flight memory estimate
 ConvergenceError -- an iterative eigensolver did not converge (a CheckpointError)
 UnnormalisedStateWarning -- the stored state was not normalised (it is profiled normalised)
+ResolutionError  -- a budget target below what the stored spectra can certify (a ValueError)
 ResolutionWarning -- Schmidt values resolved far worse than the precision (ill-conditioned gauge)
 
 Heavy dependencies (scipy, matplotlib, dask) are imported only when a
@@ -95,6 +97,8 @@ _LAZY = {
     "load_mutual": "bondscope._analyses.mutual",
     "mutual_figure": "bondscope._figures.mutual",
     "ordering_figure": "bondscope._figures.ordering",
+    "ScalingFit": "bondscope._analyses.scaling",
+    "ResolutionError": "bondscope._analyses.budget",
 }
 
 __all__ = ["CheckpointError", "ConvergenceError", "MemoryLimitError", "__version__", *_LAZY]

@@ -48,6 +48,7 @@ from ._blockforms import find_block_layouts, form_of, read_site, site_groups
 from ._charges import FLOWS, ChainCharges, parse_charges
 from ._checkpoint import _family, _numbering_problem, _open, _reader, _stored_dtype
 from ._errors import CheckpointError
+from ._linked import refuse_missing_sources
 from ._source import AXIS_WORDS, _canonical, _Held, compute_dtype, parse_axes
 
 __all__ = ["open_blocks", "find_block_layouts", "has_block_layout", "BlockChainSource",
@@ -331,6 +332,7 @@ def open_blocks(path, *, pattern=None, form=None, charges=None, modulus=None, ax
         raise ValueError(f"charge flow {flow!r} is not one of {', '.join(FLOWS)}")
     f = _open(path)
     try:
+        refuse_missing_sources(f, path)
         src = _build(f, Path(path), pattern, form, charges, modulus, axes, flow, precision)
     except BaseException:
         f.close()

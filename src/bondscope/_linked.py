@@ -85,6 +85,14 @@ def missing_sources(f):
     list of (str, str)
         (virtual dataset, what is missing) pairs: a source file that does not
         exist or is not HDF5, or a source dataset absent from its file.
+        Sources named by a printf-style pattern (``%b``, one file per block of
+        an unlimited dimension) are not checked.
+
+    Notes
+    -----
+    Cost: each distinct source file is opened once, read-only, for its link
+    table (about a millisecond each; a checkpoint gathering 10^4 per-process
+    files takes seconds).
     """
     import h5py
 
@@ -93,6 +101,8 @@ def missing_sources(f):
         if link["kind"] != "virtual dataset":
             continue
         key = (link["file"], link["dataset"])
+        if "%" in Path(link["file"]).name:  # a printf-style name pattern: many files, unchecked
+            continue
         if key not in checked:
             checked[key] = _source_problem(h5py, *key)
         if checked[key]:
@@ -136,7 +146,8 @@ def linked_stamps(f):
     -------
     list of list
         ``[path, size, mtime_ns]``, or ``[path, None, None]`` for a missing
-        file, sorted by path, each file once.
+        file or a name pattern (not resolved to files), sorted by path, each
+        file once.
     """
     stamps = {}
     for link in linked_files(f):

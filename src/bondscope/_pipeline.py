@@ -368,7 +368,7 @@ def inspect(source, options=None, **kwargs):
             info["route"] = route
         info["estimate"] = estimate(src, route, opts.truncating, opts.charges is not None,
                                     opts.disentangle).to_dict()
-        if src.kind in ("mps", "state-vector") and not hasattr(src, "blocks"):
+        if not hasattr(src, "blocks") and src.kind in ("mps", "state-vector"):
             from ._kernels.pairtasks import pair_estimate
 
             info["mutual_estimate"] = pair_estimate(src).to_dict()

@@ -5,7 +5,9 @@ the keys of its JSON document, in order; ``to_dict`` turns nested results,
 numpy scalars and arrays into plain values, and ``result["key"]`` reads a
 field as the document's key (so code written against the JSON keeps working).
 A subclass may define ``_summary()`` (one line for ``repr``) and list the
-fields a notebook table shows in ``_shown``.
+fields a notebook table shows in ``_shown``.  A field holding :data:`ABSENT`
+does not apply to this result (e.g. the time fields of a bond series): it is
+left out of the document, ``keys()`` and ``in``.
 """
 
 import dataclasses
@@ -14,7 +16,20 @@ import json
 
 import numpy as np
 
-__all__ = ["Result", "plain"]
+__all__ = ["ABSENT", "Result", "plain"]
+
+
+class _Absent:
+    """Marker of a field that does not apply to a result (left out of its document)."""
+
+    def __bool__(self):
+        return False
+
+    def __repr__(self):
+        return "ABSENT"
+
+
+ABSENT = _Absent()
 
 
 def plain(value):
@@ -56,39 +71,42 @@ class Result:
 
     _shown = ()
 
+    def _names(self):
+        return [f.name for f in dataclasses.fields(self) if getattr(self, f.name) is not ABSENT]
+
     def to_dict(self):
         """The result as plain JSON-ready values, keyed by field name."""
-        return {f.name: plain(getattr(self, f.name)) for f in dataclasses.fields(self)}
+        return {name: plain(getattr(self, name)) for name in self._names()}
 
     def to_json(self, indent=None):
         """The result as JSON text (NaN and Inf refused)."""
         return json.dumps(self.to_dict(), indent=indent, allow_nan=False)
 
     def __getitem__(self, key):
-        if key not in {f.name for f in dataclasses.fields(self)}:
+        if key not in self._names():
             raise KeyError(key)
         return getattr(self, key)
 
     def __contains__(self, key):
-        return key in {f.name for f in dataclasses.fields(self)}
+        return key in self._names()
 
     def get(self, key, default=None):
         return getattr(self, key) if key in self else default
 
     def keys(self):
-        return [f.name for f in dataclasses.fields(self)]
+        return self._names()
 
     def __repr__(self):
         summary = getattr(self, "_summary", None)
         if summary is not None:
             return f"<{type(self).__name__}: {summary()}>"
         fields = ", ".join(f"{f.name}={getattr(self, f.name)!r}" for f in dataclasses.fields(self)
-                           if f.repr)
+                           if f.repr and getattr(self, f.name) is not ABSENT)
         return f"{type(self).__name__}({fields})"
 
     def _repr_html_(self):
-        names = self._shown or [f.name for f in dataclasses.fields(self)
-                                if not isinstance(getattr(self, f.name), (list, dict, tuple))]
+        names = self._shown or [n for n in self._names()
+                                if not isinstance(getattr(self, n), (list, dict, tuple))]
         rows = "".join(f"<tr><th style='text-align:left'>{html.escape(n)}</th>"
                        f"<td>{html.escape(_short(getattr(self, n)))}</td></tr>" for n in names)
         return (f"<table><caption style='text-align:left'><b>{html.escape(type(self).__name__)}"

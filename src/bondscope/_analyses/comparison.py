@@ -1,15 +1,19 @@
 """Comparison of profiles of one system: convergence in bond dimension, or growth in time."""
 
+import dataclasses
 import os
 import re
 from pathlib import Path
 
 import numpy as np
 
+from .._results import ABSENT, Result
 from .._runinfo import run_attributes
+from .extrapolation import Extrapolation, extrapolate, extrapolate_series, run_precision
 from .inputs import as_profile, nats_per_unit
 
-__all__ = ["compare_profiles", "extrapolate", "Extrapolation", "checkpoint_meta", "SERIES"]
+__all__ = ["SERIES", "Comparison", "Extrapolation", "checkpoint_meta", "compare_profiles",
+           "extrapolate"]
 
 SERIES = ("auto", "bond", "time")
 # checkpoint root attributes read as run metadata
@@ -17,73 +21,42 @@ _META_ATTRS = ("time", "max_discarded_weight")
 _NUMBER = re.compile(r"[-+]?\d+(?:\.\d+)?(?:[eE][-+]?\d+)?")
 
 
+@dataclasses.dataclass(frozen=True)
+class Comparison(Result):
+    """Result of :func:`compare_profiles`; fields as its JSON keys (docs/analysis.md).
+    Bond series have no time fields, time series no extrapolation."""
+
+    series: str
+    runs: list
+    sites: int
+    positions: list
+    entropies: list
+    units: str
+    differences: list
+    largest_difference: dict
+    last_difference: float
+    tol: float
+    converged: bool
+    verdict: str
+    extrapolation: object = ABSENT
+    extrapolation_note: str = ABSENT
+    times: list = ABSENT
+    time_source: str = ABSENT
+    middle_position: int = ABSENT
+    middle_growth_rate: float = ABSENT
+    middle_growth_rates: list = ABSENT
+
+    _shown = ("series", "verdict", "last_difference", "tol", "runs")
+
+    def _summary(self):
+        return (f"{self.series} series of {len(self.runs)} runs: {self.verdict} (last change "
+                f"{self.last_difference:.3g} nats)")
+
+
 def _name(source, prof, i):
     if isinstance(source, (str, os.PathLike)):
         return Path(source).name
     return prof.source or f"#{i}"
-
-
-class Extrapolation:
-    """A straight line y = value + slope * x fitted to a series, read at x = 0.
-
-    Attributes
-    ----------
-    value : float
-        The intercept: y extrapolated to x = 0.
-    slope : float
-    error : float or None
-        Standard error of `value` (residual variance times the covariance);
-        None with only two points.
-    """
-
-    def __init__(self, value, slope, error):
-        self.value, self.slope, self.error = value, slope, error
-
-    def curve(self, x):
-        """The fitted line at `x` (array_like)."""
-        return self.value + self.slope * np.asarray(x, dtype=float)
-
-    def to_dict(self):
-        return {"value": self.value, "slope": self.slope, "error": self.error}
-
-
-def extrapolate(x, y):
-    """Fit y = y0 + a x by least squares and return y0, the value at x = 0.
-
-    Parameters
-    ----------
-    x, y : array_like, shape (n,)
-        n >= 2 points with at least two distinct x (e.g. discarded weights
-        and entropies of runs at growing bond dimension).
-
-    Returns
-    -------
-    Extrapolation
-
-    Raises
-    ------
-    ValueError
-        Shapes differ, fewer than two points, or all x equal.
-
-    Notes
-    -----
-    Linear extrapolation in the discarded weight is common practice in
-    DMRG (Legeza & Fath, PRB 53, 14349 (1996)).  Cost O(n).
-    """
-    x = np.asarray(x, dtype=float)
-    y = np.asarray(y, dtype=float)
-    if x.shape != y.shape or x.ndim != 1 or len(x) < 2:
-        raise ValueError(f"extrapolation needs two equal 1-D series of >= 2 points, found "
-                         f"shapes {x.shape} and {y.shape}")
-    if np.ptp(x) == 0:
-        raise ValueError(f"extrapolation needs distinct x values, all are {x[0]!r}")
-    A = np.stack([np.ones_like(x), x], axis=1)
-    (y0, a), *_ = np.linalg.lstsq(A, y, rcond=None)
-    resid = y - A @ np.array([y0, a])
-    dof = len(x) - 2
-    error = (float(np.sqrt(resid @ resid / dof * np.linalg.inv(A.T @ A)[0, 0]))
-             if dof > 0 else None)
-    return Extrapolation(float(y0), float(a), error)
 
 
 def checkpoint_meta(path):
@@ -142,7 +115,8 @@ def _times(profs, metas, names):
     return [float(i) for i in range(len(profs))], "order"
 
 
-def compare_profiles(sources, *, tol=1e-3, series="auto", names=None, meta=None):
+def compare_profiles(sources, *, tol=1e-3, series="auto", names=None, meta=None, runs=None,
+                     form="wlogw"):
     """Compare profiles of one system at several bond dimensions or times.
 
     Parameters
@@ -166,15 +140,23 @@ def compare_profiles(sources, *, tol=1e-3, series="auto", names=None, meta=None)
     meta : sequence of dict, optional
         Per run, ``time`` and ``max_discarded_weight`` when the documents
         lack them; default `checkpoint_meta` of path inputs.
+    runs : int or sequence of str, optional
+        Runs of a bond series used for the extrapolation: the last `runs`
+        (smallest weights), or those named; default the last three.
+    form : {"wlogw", "linear"}
+        Extrapolation form S = S0 + a g(w): g = w (1 + ln(1/w)) (default),
+        or g = w.
 
     Returns
     -------
-    dict
+    Comparison
         ``series``, ``runs`` (names in order), ``positions`` (the common
         cuts), ``entropies`` (runs x cuts, nats), ``differences`` (per step
         between consecutive runs, per cut), ``largest_difference`` (value,
         position, runs), ``converged``, ``verdict``, ``tol``; for "bond" an
-        ``extrapolation`` (or None with ``extrapolation_note``); for "time"
+        ``extrapolation`` (``entropies``, ``errors``, ``slopes``, ``methods``,
+        ``runs``, ``form``, ``weights``, ``weight_sources``; or None with
+        ``extrapolation_note``); for "time"
         ``times``, ``time_source``, ``middle_position``,
         ``middle_growth_rate`` and ``middle_growth_rates``.
 
@@ -187,22 +169,27 @@ def compare_profiles(sources, *, tol=1e-3, series="auto", names=None, meta=None)
     Notes
     -----
     Cost O(runs x cuts).  Entropies are compared in nats whatever each
-    document's ``log_base``.  The extrapolation fits S = S0 + a w per cut
-    by least squares over the runs and reports S0, the entropy at zero
-    discarded weight w (linear in w: common practice in DMRG).  The weight
-    of a run at a cut is its ``cuts[].discarded_weight`` when every common
-    cut has one and the document has no ``truncation`` object (bondscope
-    writes both for a what-if truncation of the profiled state, whose
-    entropies are untruncated); else the run's top-level
+    document's ``log_base``.  The extrapolation fits S = S0 + a g(w) per cut
+    over the chosen runs by weighted least squares and keeps the best run
+    where it is converged to its own precision, where the weights do not
+    differ, or where the fit would move further than the runs' last step
+    (see `bondscope._analyses.extrapolation.extrapolate_series`).  The
+    weight of a run at a cut is its ``cuts[].discarded_weight`` when every
+    common cut has one and the document has no ``truncation`` object
+    (bondscope writes both for a what-if truncation of the profiled state,
+    whose entropies are untruncated); else the run's top-level
     ``max_discarded_weight`` or ``discarded_weight``, or its checkpoint's
-    ``max_discarded_weight`` attribute, used at every cut.  The middle growth rate is the least-squares slope dS/dt of the
-    cut nearest N/2 over all times.
+    ``max_discarded_weight`` attribute, used at every cut.  The middle
+    growth rate is the least-squares slope dS/dt of the cut nearest N/2
+    over all times.
 
     References
     ----------
     .. [1] O. Legeza and G. Fath, PRB 53, 14349 (1996): accuracy of DMRG
            results against the discarded weight.
     """
+    if form not in ("wlogw", "linear"):
+        raise ValueError(f"form (--form) must be wlogw or linear, found {form!r}")
     if series not in SERIES:
         raise ValueError(f"series must be one of {SERIES}, found {series!r}")
     if not tol >= 0:
@@ -279,17 +266,14 @@ def compare_profiles(sources, *, tol=1e-3, series="auto", names=None, meta=None)
             "middle_growth_rates": ([float(v) for v in np.diff(s_mid) / dt]
                                     if (dt > 0).all() else None),
         })
-        return out
+        return Comparison(**out)
     out["verdict"] = "converged" if converged else "not converged"
     W, wsources = _weights(profs, metas, positions)
-    if W is None or (np.ptp(W, axis=0) == 0).any():
+    if W is None:
         out["extrapolation"] = None
-        out["extrapolation_note"] = ("no discarded weight for every run" if W is None else
-                                     "the runs' discarded weights do not differ at every cut")
-        return out
-    fits = [extrapolate(W[:, j], S[:, j]) for j in range(len(positions))]
-    out["extrapolation"] = {"entropies": [f.value for f in fits],
-                            "errors": [f.error for f in fits],
-                            "slopes": [f.slope for f in fits],
-                            "weights": W.tolist(), "weight_sources": wsources}
-    return out
+        out["extrapolation_note"] = "no discarded weight for every run"
+        return Comparison(**out)
+    precision = np.array([run_precision(p, positions) for p in profs])
+    ext = extrapolate_series(W, S, names, precision, form=form, runs=runs)
+    out["extrapolation"] = {**ext, "weights": W.tolist(), "weight_sources": wsources}
+    return Comparison(**out)

@@ -1,21 +1,30 @@
 """Scaling fit: central charge from the Calabrese-Cardy form, and the scaling law."""
 
+import dataclasses
 import math
 
 import numpy as np
 
+from .._results import ABSENT, Result
 from .diagnostics import spectrum_diagnostics
 from .inputs import as_profile, nats_per_unit
+from .models import choose_alternation, fit_model
+from .saturation import finite_chi
+from .verdict import AREA_C, PAGE_FRACTION, decide_law
 
-__all__ = ["fit_scaling", "parse_window", "page_entropy", "BOUNDARIES", "CORRECTIONS"]
+__all__ = ["fit_scaling", "ScalingFit", "parse_window", "page_entropy", "resolve_boundary",
+           "BOUNDARIES", "CORRECTIONS", "AREA_C", "PAGE_FRACTION"]
 
 BOUNDARIES = ("open", "periodic")
 CORRECTIONS = ("parity", "smooth")
-# c below half the smallest unitary central charge (1/2, Friedan, Qiu, Shenker, PRL 52,
-# 1575 (1984)) means the entropy has stopped growing with the block: area law
-AREA_C = 0.25
-# a volume-law middle cut holds at least this fraction of the Page value (our choice)
-PAGE_FRACTION = 0.5
+# a finite-chi bias moving c by more than this makes the verdict inconclusive (our choice:
+# a tenth of the gap between the two smallest unitary central charges, 1/2 and 7/10)
+SATURATED_C = 0.02
+# a fitted alternation exponent this close to 1/2 marks an SU(2)-like chain (K = 1/2 at the
+# isotropic point, Laflorencie et al. (2006)), whose marginal operator's corrections enter c
+SU2_EXPONENT = 0.25
+# entropies are trusted to no better than this (nats; our choice, ~1e6 float64 eps)
+NOISE_MIN = 1e-10
 # above this ln(dA dB) the digamma difference is replaced by Page's asymptotic form
 _PAGE_ASYMPTOTIC = 600.0
 
@@ -81,60 +90,27 @@ def parse_window(window, sites):
     return int(a), int(b)
 
 
-def _chord(l, sites, boundary, walls=False):
-    """Chord length; ``walls``: open chain with its walls half a site beyond the ends."""
-    if walls:
-        return 2.0 * (sites + 1) / np.pi * np.sin(np.pi * (l + 0.5) / (sites + 1))
-    scale = 2.0 * sites if boundary == "open" else float(sites)
-    return scale / np.pi * np.sin(np.pi * l / sites)
+def resolve_boundary(boundary, prof):
+    """The boundary a fit uses and where it came from: the one given, else the profile's
+    ``boundary`` field (or its batch record's checkpoint attribute), else "open".
 
-
-def _design(l, x, boundary, corrections, exponent):
-    cols = [np.log(x) / (6.0 if boundary == "open" else 3.0), np.ones_like(x)]
-    if "parity" in corrections:
-        cols.append((-1.0) ** l / x ** exponent)
-    if "smooth" in corrections:
-        cols.append(1.0 / x)
-    return np.stack(cols, axis=1)
-
-
-def _lstsq(A, y):
-    coef, *_ = np.linalg.lstsq(A, y, rcond=None)
-    resid = y - A @ coef
-    dof = len(y) - A.shape[1]
-    cov = (resid @ resid / dof) * np.linalg.pinv(A.T @ A) if dof > 0 else None
-    return coef, resid, cov
-
-
-def _fit(l, S, sites, boundary, corrections, exponent, walls=False):
-    x = _chord(l, sites, boundary, walls)
-    return _lstsq(_design(l, x, boundary, corrections, exponent), S)
-
-
-def _law(l, S, sites, boundary, c, local_dims):
-    """Classify the profile; see docs/analysis.md for the criterion."""
-    x = _chord(l, sites, boundary)
-    _, r_log, _ = _lstsq(np.stack([np.log(x), np.ones_like(x)], axis=1), S)
-    dist = np.minimum(l, sites - l).astype(float)
-    (slope, _), r_lin, _ = _lstsq(np.stack([dist, np.ones_like(dist)], axis=1), S)
-    mid = int(np.argmin(np.abs(l - sites / 2.0)))
-    page = ratio = None
-    if local_dims is not None:
-        logs = np.log(np.asarray(local_dims, dtype=float))
-        page = page_entropy(logs[:l[mid]].sum(), logs[l[mid]:].sum())
-        ratio = float(S[mid] / page) if page > 0 else None
-    rss_log, rss_lin = float(r_log @ r_log), float(r_lin @ r_lin)
-    if c < AREA_C:
-        law = "area"
-    elif slope > 0 and rss_lin < rss_log and (ratio is None or ratio >= PAGE_FRACTION):
-        law = "volume"
-    else:
-        law = "logarithmic"
-    evidence = {"area_threshold": AREA_C, "rss_logarithmic": rss_log, "rss_linear": rss_lin,
-                "volume_slope": float(slope), "middle_position": int(l[mid]),
-                "middle_entropy": float(S[mid]), "page_entropy": page, "page_ratio": ratio,
-                "page_fraction": PAGE_FRACTION}
-    return law, evidence
+    Raises
+    ------
+    ValueError
+        A given boundary other than "open" or "periodic".
+    """
+    if boundary is not None:
+        if boundary not in BOUNDARIES:
+            raise ValueError(f"boundary (--boundary) must be one of {', '.join(BOUNDARIES)}, "
+                             f"found {boundary!r}")
+        return boundary, "given"
+    if prof.get("boundary") in BOUNDARIES:
+        return prof["boundary"], "profile field"
+    record = prof.get("batch")
+    attrs = record.get("attrs") if isinstance(record, dict) else None
+    if isinstance(attrs, dict) and attrs.get("boundary") in BOUNDARIES:
+        return attrs["boundary"], "checkpoint attribute"
+    return "open", "default"
 
 
 def _alternatives(a, b, default_margin, sites):
@@ -146,77 +122,33 @@ def _alternatives(a, b, default_margin, sites):
     return [w for w in dict.fromkeys(wins) if w[0] <= w[1] and w != (a, b)]
 
 
-def fit_scaling(source, *, boundary="open", window=None, corrections=None, parity_exponent=1.0,
-                local_dim=None, spectrum_report=False, degeneracy_tol=1e-6):
-    """Fit the Calabrese-Cardy form to a profile: central charge, constant, scaling law.
+def _noise(prof, positions):
+    """The entropies' accuracy in nats: NOISE_MIN, or the unresolved weight's entropy."""
+    from .saturation import entropy_bias
 
-    The model, in nats, for a cut after l of L sites::
+    by_pos = {c["position"]: c for c in prof.cuts}
+    worst = NOISE_MIN
+    for p in positions:
+        cut = by_pos[int(p)]
+        floor = float(cut.get("resolution_floor", 0.0))
+        rank = int(cut.get("bond_dimension") or cut.get("schmidt_rank") or 1)
+        worst = max(worst, entropy_bias(min(1.0, rank * floor ** 2)) / 2.0)
+    return worst
 
-        open:      S(l) = (c/6) ln x + s0 [+ b (-1)^l / x^K] [+ f / x],  x = (2L/pi) sin(pi l/L)
-        periodic:  S(l) = (c/3) ln x + s0 [+ ...],                       x = (L/pi) sin(pi l/L)
 
-    Parameters
-    ----------
-    source : Profile, dict or path
-        The profile (or a checkpoint, profiled with default options).
-    boundary : {"open", "periodic"}
-        Chain with two ends, or ring.
-    window : str or (int, int), optional
-        Inclusive range ``"A:B"`` of cut positions to fit.  Default: drop
-        ``m = max(1, L // 8)`` cuts at each end (the boundary region), i.e.
-        ``m:L-m``.
-    corrections : sequence of {"parity", "smooth"}, optional
-        Extra terms: "parity", the alternating b (-1)^l / x^K; "smooth", a
-        term f / x.  Default: both for open chains, none for rings.
-    parity_exponent : float
-        K of the alternating term (1 for free fermions).
-    local_dim : int or sequence of int, optional
-        Local dimensions for the Page comparison when the document has no
-        ``local_dims``.
-    spectrum_report : bool
-        Add ``diagnostics`` (see `spectrum_diagnostics`); needs spectra.
-    degeneracy_tol : float
-        Tolerance of the spectrum report.
+def _parity_setting(parity_exponent):
+    """(form, exponent) of the alternating term; form None: chosen from the data."""
+    if parity_exponent is None or parity_exponent == "auto":
+        return None, None
+    if parity_exponent == "su2":
+        return "su2", 0.5
+    if isinstance(parity_exponent, str) or not parity_exponent > 0:
+        raise ValueError(f"parity_exponent (--parity-exponent) must be a number > 0, 'auto' "
+                         f"or 'su2', found {parity_exponent!r}")
+    return "fixed", float(parity_exponent)
 
-    Returns
-    -------
-    dict
-        ``central_charge``, ``central_charge_error`` (its fit, window and
-        length parts in ``error_parts``), ``constant`` (s0, nats), ``amplitudes`` of the
-        corrections, ``boundary``, ``window``, ``positions``, ``residuals``
-        (nats, per position), ``rms_residual``, ``law`` ("area",
-        "logarithmic" or "volume") with ``law_evidence``; see
-        docs/analysis.md.
 
-    Raises
-    ------
-    ValueError
-        Unknown boundary or correction, a bad window, or too few cuts.
-
-    Notes
-    -----
-    Linear least squares: O(n p^2) for n cuts and p <= 4 parameters, run
-    once per window.  ``central_charge_error`` is the quadrature sum of
-    three parts: the fit's standard error (covariance scaled by the
-    residual variance); the largest change of c over the windows trimmed
-    by an eighth at the left, right or both ends (and, for the default
-    window, the one with half the margin); and, for open chains, the
-    change of c when the chord is taken for a chain of L + 1 with the cut
-    at l + 1/2 (walls half a site beyond the end sites), the finite-size
-    ambiguity of the chord.  The residuals of exact critical data are
-    systematic, so the last two usually dominate.  Entropies are
-    converted from the document's ``log_base`` to nats.
-
-    References
-    ----------
-    .. [1] P. Calabrese and J. Cardy, J. Stat. Mech. P06002 (2004).
-    .. [2] N. Laflorencie, E. S. Sorensen, M.-S. Chang, I. Affleck, PRL 96,
-           100603 (2006): the alternating term of open chains.
-    .. [3] D. N. Page, PRL 71, 1291 (1993): the volume-law reference.
-    """
-    if boundary not in BOUNDARIES:
-        raise ValueError(f"boundary (--boundary) must be one of {', '.join(BOUNDARIES)}, "
-                         f"found {boundary!r}")
+def _corrections(corrections, boundary):
     if corrections is None:
         corrections = CORRECTIONS if boundary == "open" else ()
     elif isinstance(corrections, str):
@@ -226,14 +158,136 @@ def fit_scaling(source, *, boundary="open", window=None, corrections=None, parit
     if unknown:
         raise ValueError(f"unknown correction {unknown[0]!r} (corrections=, --corrections); "
                          f"choose from {', '.join(CORRECTIONS)} or none")
-    if not parity_exponent > 0:
-        raise ValueError(f"parity_exponent (--parity-exponent) must be > 0, "
-                         f"found {parity_exponent!r}")
+    return corrections
+
+
+@dataclasses.dataclass(frozen=True)
+class ScalingFit(Result):
+    """Result of :func:`fit_scaling`; fields as its JSON keys (docs/analysis.md)."""
+
+    boundary: str
+    boundary_source: str
+    sites: int
+    window: list
+    corrections: list
+    parity_exponent: float
+    parity_form: str
+    central_charge: float
+    central_charge_error: float
+    error_parts: dict
+    constant: float
+    amplitudes: dict
+    units: str
+    positions: list
+    residuals: list
+    rms_residual: float
+    law: str
+    law_reason: str
+    law_evidence: dict
+    flags: list
+    saturation: dict
+    diagnostics: object = ABSENT
+
+    _shown = ("law", "central_charge", "central_charge_error", "boundary", "window",
+              "parity_form", "law_reason")
+
+    def _summary(self):
+        if self.law == "logarithmic":
+            return (f"logarithmic, c = {self.central_charge:.4g} +- "
+                    f"{self.central_charge_error:.2g} ({self.boundary})")
+        return f"{self.law}: {self.law_reason}"
+
+
+def fit_scaling(source, *, boundary=None, window=None, corrections=None, parity_exponent=None,
+                local_dim=None, spectrum_report=False, degeneracy_tol=None):
+    """Fit the Calabrese-Cardy form to a profile: central charge, constant, scaling law.
+
+    The model, in nats, for a cut after l of L sites::
+
+        open:      S(l) = (c/6) ln x + s0 [+ b A(l, x)] [+ f / x],  x = (2L/pi) sin(pi l/L)
+        periodic:  S(l) = (c/3) ln x + s0 [+ ...],                   x = (L/pi) sin(pi l/L)
+
+    with the alternating term A = (-1)^l / x^K, or (-1)^l sqrt(ln x) / x^(1/2)
+    for SU(2) chains.
+
+    Parameters
+    ----------
+    source : Profile, dict or path
+        The profile (or a checkpoint, profiled with default options).
+    boundary : {"open", "periodic"}, optional
+        Chain with two ends, or ring.  Default: the profile's ``boundary``
+        field (or its batch record's checkpoint attribute), else "open";
+        ``boundary_source`` in the result says which.
+    window : str or (int, int), optional
+        Inclusive range ``"A:B"`` of cut positions to fit.  Default: drop
+        ``m = max(1, L // 8)`` cuts at each end (the boundary region), i.e.
+        ``m:L-m``.
+    corrections : sequence of {"parity", "smooth"}, optional
+        Extra terms: "parity", the alternating b A(l, x); "smooth", a term
+        f / x.  Default: both for open chains, none for rings.
+    parity_exponent : float, "su2" or "auto", optional
+        The alternating term's form: a number K for (-1)^l / x^K (1 for free
+        fermions); "su2" for the SU(2) form; None or "auto" (default) to
+        choose by AICc among K = 1, K fitted, and the SU(2) form.
+    local_dim : int or sequence of int, optional
+        Local dimensions for the Page comparison when the document has no
+        ``local_dims``.
+    spectrum_report : bool
+        Add ``diagnostics`` (see `spectrum_diagnostics`); needs spectra.
+    degeneracy_tol : float, optional
+        Tolerance of the spectrum report (default: from the data's accuracy).
+
+    Returns
+    -------
+    ScalingFit
+        ``central_charge``, ``central_charge_error`` (its parts in
+        ``error_parts``), ``constant`` (s0, nats), ``amplitudes`` of the
+        corrections, ``parity_form`` and ``parity_exponent`` used,
+        ``boundary`` and ``boundary_source``, ``window``, ``positions``,
+        ``residuals`` (nats), ``rms_residual``, ``law`` ("area",
+        "logarithmic", "volume" or "inconclusive") with ``law_reason`` and
+        ``law_evidence``, ``flags`` (warnings such as an unphysical c) and
+        ``saturation`` (cuts at the run's bond dimension); see
+        docs/analysis.md.
+
+    Raises
+    ------
+    ValueError
+        Unknown boundary or correction, a bad window, or too few cuts.
+
+    Notes
+    -----
+    Linear least squares, O(n p^2) for n cuts and p <= 4 parameters, run
+    once per window (and about 30 times to fit the exponent).
+    ``central_charge_error`` is the quadrature sum of four parts: the
+    fit's standard error; the largest change of c over the windows
+    trimmed by an eighth at the left, right or both ends (and, for the
+    default window, the one with half the margin); for open chains the
+    change of c when the chord is taken for a chain of L + 1 with the cut
+    at l + 1/2; and the change of c when the entropies of cuts at the
+    run's bond dimension are raised by their truncation bias (see
+    `bondscope._analyses.saturation`).  A bias moving c by more than 0.02
+    makes the verdict "inconclusive" (saturated).  The law is chosen by
+    AICc among the area, logarithmic and volume models (docs/analysis.md).
+
+    References
+    ----------
+    .. [1] P. Calabrese and J. Cardy, J. Stat. Mech. P06002 (2004).
+    .. [2] N. Laflorencie, E. S. Sorensen, M.-S. Chang, I. Affleck, PRL 96,
+           100603 (2006): the alternating term of open chains.
+    .. [3] D. N. Page, PRL 71, 1291 (1993): the volume-law reference.
+    .. [4] C. M. Hurvich and C.-L. Tsai, Biometrika 76, 297 (1989): AICc.
+    """
+    form, exponent = _parity_setting(parity_exponent)
+    if boundary is not None:
+        resolve_boundary(boundary, None)
     prof = as_profile(source, spectra=spectrum_report)
     if prof.kind == "unit-cell":
         raise ValueError(f"{prof.source or 'profile'}: a unit cell of an infinite chain has no "
                          "finite-size scaling; fit several cells at growing bond dimension "
                          "(fit_cell_scaling, `bondscope fit cell_chi*.h5`)")
+    boundary, boundary_source = resolve_boundary(boundary, prof)
+    corrections = _corrections(corrections, boundary)
     sites = prof.sites
     if sites < 3:
         raise ValueError(f"a scaling fit needs at least 3 sites, the profile has {sites}")
@@ -249,49 +303,129 @@ def fit_scaling(source, *, boundary="open", window=None, corrections=None, parit
     margin = None if user is not None else max(1, sites // 8)
     a, b = user if user is not None else (margin, sites - margin)
     n_par = 2 + len(corrections)
+    sel = (l_all >= a) & (l_all <= b)
+    if sel.sum() < n_par + 1:
+        raise ValueError(f"window (--window) {a}:{b} holds {int(sel.sum())} cuts; a fit with "
+                         f"{n_par} parameters needs at least {n_par + 1} (use --window or fewer "
+                         "corrections)")
+    l, S = l_all[sel], S_all[sel]
+    noise = _noise(prof, l)
+    alternation = None
+    if "parity" not in corrections:
+        form, exponent = None, None
+    elif form is None:
+        if sel.sum() >= n_par + 4:
+            form, exponent, alternation = choose_alternation(l, S, sites, boundary, corrections,
+                                                             noise)
+        else:
+            form, exponent = "fixed", 1.0
 
-    def run(lo, hi, walls=False):
-        sel = (l_all >= lo) & (l_all <= hi)
-        if sel.sum() < n_par + 1:
+    def c_of(lo, hi, walls=False, shift=None):
+        pick = (l_all >= lo) & (l_all <= hi)
+        if pick.sum() < n_par + 1:
             return None
-        return sel, _fit(l_all[sel], S_all[sel], sites, boundary, corrections, parity_exponent,
-                         walls)
+        y = S_all[pick] if shift is None else S_all[pick] + shift[pick]
+        return float(fit_model(l_all[pick], y, sites, boundary, "logarithmic", corrections,
+                               form or "fixed", exponent or 1.0, walls).coef[0])
 
-    best = run(a, b)
-    if best is None:
-        held = int(((l_all >= a) & (l_all <= b)).sum())
-        raise ValueError(f"window (--window) {a}:{b} holds {held} cuts; a fit with {n_par} parameters "
-                         f"needs at least {n_par + 1} (use --window or fewer corrections)")
-    sel, (coef, resid, cov) = best
-    c = float(coef[0])
-    fit_err = float(math.sqrt(cov[0, 0])) if cov is not None else 0.0
-    others = []
-    for lo, hi in _alternatives(a, b, margin, sites):
-        alt = run(lo, hi)
-        if alt is not None:
-            others.append({"window": [lo, hi], "central_charge": float(alt[1][0][0])})
+    best = fit_model(l, S, sites, boundary, "logarithmic", corrections, form or "fixed",
+                     exponent or 1.0)
+    c = float(best.coef[0])
+    fit_err = float(math.sqrt(best.cov[0, 0])) if best.cov is not None else 0.0
+    others = [{"window": [lo, hi], "central_charge": v}
+              for lo, hi in _alternatives(a, b, margin, sites)
+              if (v := c_of(lo, hi)) is not None]
     spread = max((abs(o["central_charge"] - c) for o in others), default=0.0)
-    length = abs(float(run(a, b, walls=True)[1][0][0]) - c) if boundary == "open" else 0.0
-    law, evidence = _law(l_all[sel], S_all[sel], sites, boundary, c, local_dims)
-    out = {
-        "boundary": boundary,
-        "sites": sites,
-        "window": [a, b],
-        "corrections": list(corrections),
-        "parity_exponent": float(parity_exponent),
-        "central_charge": c,
-        "central_charge_error": float(math.sqrt(fit_err ** 2 + spread ** 2 + length ** 2)),
-        "error_parts": {"fit": fit_err, "window": float(spread), "length": length,
-                        "windows": others},
-        "constant": float(coef[1]),
-        "amplitudes": {name: float(v) for name, v in zip(corrections, coef[2:])},
-        "units": "nats",
-        "positions": [int(v) for v in l_all[sel]],
-        "residuals": [float(v) for v in resid],
-        "rms_residual": float(np.sqrt(np.mean(resid ** 2))),
-        "law": law,
-        "law_evidence": evidence,
-    }
-    if spectrum_report:
-        out["diagnostics"] = spectrum_diagnostics(prof, tol=degeneracy_tol)
-    return out
+    length = abs(c_of(a, b, walls=True) - c) if boundary == "open" else 0.0
+    marginal = 0.0
+    if form == "su2" or (form == "fitted" and abs(exponent - 0.5) <= SU2_EXPONENT):
+        # the SU(2) form against the plain power: how much c hangs on the log factor
+        other = "fixed" if form == "su2" else "su2"
+        marginal = abs(float(fit_model(l, S, sites, boundary, "logarithmic", corrections, other,
+                                       0.5).coef[0]) - c)
+    sat = finite_chi(prof, l)
+    sat_part, sat_unknown = _saturation_part(sat, l_all, c, c_of, a, b)
+    if sat_unknown:
+        # bias unknown: the curvature a saturated middle puts on S against ln x, read as
+        # the change of c on the window's middle half
+        sat_part = max(sat_part, _middle_drift(l_all, S_all, a, b, sites, boundary, corrections,
+                                               form, exponent, alternation, noise, c))
+    shape_error = math.sqrt(fit_err ** 2 + spread ** 2 + length ** 2 + marginal ** 2)
+    error = float(math.sqrt(shape_error ** 2 + sat_part ** 2))
+    # the law is judged on the profile as it is; saturation is weighed after
+    law, reason, evidence, flags = decide_law(l, S, sites, boundary, corrections,
+                                              form or "fixed", exponent or 1.0, c, shape_error,
+                                              local_dims, noise)
+    if alternation is not None:
+        evidence["alternation"] = [{**a_, "aicc": None if math.isinf(a_["aicc"]) else a_["aicc"]}
+                                   for a_ in alternation]
+    if sat["capped"]:
+        chi = sat["bond_dimension"]
+        where = f"{len(sat['capped'])} of {len(l)} fitted cuts at the run's bond dimension {chi}"
+        if sat_unknown and sat_part > SATURATED_C and law in ("logarithmic", "inconclusive"):
+            law, reason = "inconclusive", (f"possibly saturated: {where}, their truncation "
+                                           f"bias unknown, and c on the window's middle half "
+                                           f"differs by {sat_part:.2g}; profile with "
+                                           "--spectrum or use a larger bond dimension")
+            flags.append(reason)
+        elif sat_unknown:
+            flags.append(f"{where}; their truncation bias is unknown without spectra or a "
+                         "discarded weight (profile with --spectrum); the curvature of the "
+                         f"middle half ({sat_part:.2g} in c) is in the error")
+        elif (sat_part > SATURATED_C or sat["severe"]) and law in ("logarithmic",
+                                                                   "inconclusive"):
+            moved = (f"move c by {sat_part:.2g}" if not sat["severe"] else
+                     f"drop up to half their weight at {len(sat['severe'])} cuts")
+            law, reason = "inconclusive", (f"saturated: {where} {moved}; use a larger bond "
+                                           "dimension or a window of uncapped cuts")
+            flags.append(reason)
+        elif sat_part > SATURATED_C or sat["severe"]:
+            flags.append(f"{where}: a {law} law, or a critical profile saturated by the bond "
+                         "dimension; a run at larger bond dimension tells")
+    diagnostics = (spectrum_diagnostics(prof, tol=degeneracy_tol) if spectrum_report
+                   else ABSENT)
+    return ScalingFit(
+        boundary=boundary, boundary_source=boundary_source, sites=sites, window=[a, b],
+        corrections=list(corrections), parity_exponent=exponent, parity_form=form,
+        central_charge=c, central_charge_error=error,
+        error_parts={"fit": fit_err, "window": float(spread), "length": length,
+                     "saturation": sat_part, "marginal": marginal,
+                     "windows": others},
+        constant=float(best.coef[1]),
+        amplitudes={name: float(v) for name, v in zip(corrections, best.coef[2:])},
+        units="nats", positions=[int(v) for v in l], residuals=[float(v) for v in best.resid],
+        rms_residual=float(np.sqrt(np.mean(best.resid ** 2))), law=law, law_reason=reason,
+        law_evidence=evidence, flags=flags, saturation={**sat, "c_shift": sat_part},
+        diagnostics=diagnostics)
+
+
+def _middle_drift(l_all, S_all, a, b, sites, boundary, corrections, form, exponent,
+                  alternation, noise, c):
+    """|c on the window's middle half - c|, the alternation chosen afresh when it was chosen
+    from the data (0 when the middle half is too short)."""
+    q = (b - a) // 4
+    pick = (l_all >= a + q) & (l_all <= b - q)
+    n_par = 2 + len(corrections)
+    if not q or pick.sum() < n_par + 1:
+        return 0.0
+    l, S = l_all[pick], S_all[pick]
+    if alternation is not None and pick.sum() >= n_par + 4:
+        form, exponent, _ = choose_alternation(l, S, sites, boundary, corrections, noise)
+    fit = fit_model(l, S, sites, boundary, "logarithmic", corrections, form or "fixed",
+                    exponent or 1.0)
+    return abs(float(fit.coef[0]) - c)
+
+
+def _saturation_part(sat, l_all, c, c_of, a, b):
+    """(change of c when capped cuts are raised by their bias, whether a bias is unknown)."""
+    if not sat["capped"]:
+        return 0.0, False
+    known = [v for v in sat["bias"] if v is not None]
+    unknown = len(known) < len(sat["bias"])
+    shift = np.zeros(len(l_all))
+    index = {int(p): i for i, p in enumerate(l_all)}
+    for p, v in zip(sat["capped"], sat["bias"]):
+        shift[index[p]] = v or 0.0
+    if not shift.any():
+        return 0.0, unknown
+    return abs(c_of(a, b, shift=shift) - c), unknown

@@ -157,7 +157,7 @@ def run_batch(inputs, out, *, workers=None, scheduler=None, shard=None, force=Fa
         ({"attr": group_attr} if group_attr is not None else {"pattern": group_pattern})
     files = write_summary(out, suffix, rows, inputs, shard, recorded, group_by)
     if group_by is not None:
-        files["series"] = write_series(out, suffix, rows, group_by)
+        files["series"] = write_series(out, suffix, rows, group_by, rename)
     return BatchSummary(rows, out, files)
 
 

@@ -3,11 +3,13 @@
 import csv
 import io
 import json
+import math
 import os
 from pathlib import Path
 
 from .._errors import EXIT_SOME_FAILED, one_line
 from .._files import atomic_write, csv_cell
+from .._runinfo import run_attributes
 from .._text import natural_key
 
 __all__ = ["BatchSummary", "COLUMNS", "PROFILES", "SUMMARY_FORMAT", "SERIES_FORMAT", "row",
@@ -132,14 +134,22 @@ def _order(row):
     return (time is None, time or 0, bond is None, bond or 0, natural_key(row["source"]))
 
 
-def _compare_series(out, members):
+def _run_meta(path, rename):
+    """The run's time and discarded weight read under the batch's attribute names
+    (finite numbers only), for the series comparison."""
+    found = run_attributes(path, ("time", "max_discarded_weight"), rename)
+    return {k: float(v) for k, v in found.items()
+            if isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)}
+
+
+def _compare_series(out, members, rename):
     """The comparison verdict of one series (``bondscope compare`` on its profiles)."""
-    from .._analyses.comparison import checkpoint_meta, compare_profiles
+    from .._analyses.comparison import compare_profiles
 
     try:
         res = compare_profiles([out / m["profile"] for m in members],
                                names=[Path(m["checkpoint"]).name for m in members],
-                               meta=[checkpoint_meta(m["checkpoint"]) for m in members])
+                               meta=[_run_meta(m["checkpoint"], rename) for m in members])
     except (ValueError, OSError) as exc:
         return {"error": f"{type(exc).__name__}: {one_line(exc)}"}
     keep = ("series", "runs", "largest_difference", "converged", "threshold", "extrapolation",
@@ -147,14 +157,14 @@ def _compare_series(out, members):
     return {k: res[k] for k in keep if k in res}
 
 
-def write_series(out, suffix, rows, group_by):
+def write_series(out, suffix, rows, group_by, rename=None):
     series = {}
     for r in sorted(rows, key=_order):
         if r["series"] is not None and r["profile"] is not None:
             series.setdefault(r["series"], []).append(
                 {"checkpoint": r["source"], "profile": r["profile"], "time": r["time"],
                  "bond_dim": r["bond_dim"]})
-    comparisons = {name: _compare_series(out, members)
+    comparisons = {name: _compare_series(out, members, rename)
                    for name, members in sorted(series.items()) if len(members) > 1}
     doc = {"format": SERIES_FORMAT, "version": 1, "group_by": group_by,
            "series": dict(sorted(series.items())), "comparisons": comparisons}

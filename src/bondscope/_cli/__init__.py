@@ -60,7 +60,11 @@ def main(argv=None):
         if args.verb is None:
             build_parser().print_help(sys.stderr)
             return EXIT_USAGE
-        return int(args._run(args) or 0)
+        from ._warnings import quiet_warnings
+
+        # every verb: Python warnings as one 'warning:' line each, none with --quiet
+        with quiet_warnings(getattr(args, "quiet", False)):
+            return int(args._run(args) or 0)
     except KeyboardInterrupt:
         print("error: interrupted", file=sys.stderr)
         return 130

@@ -51,6 +51,15 @@ def _spectrum(text):
         raise UsageError(f"--spectrum {text!r}: expected a count K or 'all'") from None
 
 
+def _exponent(text):
+    if text in ("auto", "su2"):
+        return text
+    try:
+        return float(text)
+    except ValueError:
+        raise UsageError(f"--parity-exponent {text!r}: expected a number, su2 or auto") from None
+
+
 def _corrections(text):
     names = _words(text)
     return () if names == ["none"] else tuple(names)
@@ -161,8 +170,9 @@ FLAGS = {
         help="extra terms: parity, smooth, both (parity,smooth) or none (default: both for open "
              "chains, none for rings)")),
     "parity_exponent": ("fit", ("--parity-exponent",), dict(
-        metavar="K", type=float,
-        help="decay exponent of the alternating term (default 1, free fermions)")),
+        metavar="K", type=_exponent,
+        help="alternating term (-1)^l / x^K: a number K (1 for free fermions), su2 for the "
+             "SU(2) form sqrt(ln x)/x^(1/2), or auto (default: chosen by AICc)")),
 }
 
 LAYOUT_FLAGS = ("state", "tensors", "local_dim", "axes", "complex_parts", "unit_cell",

@@ -23,23 +23,49 @@ def add_arguments(p):
 
 
 def run(args):
+    from ._warnings import quiet_warnings
+
+    with quiet_warnings(args.quiet):
+        return _run(args)
+
+
+def _budget(prof, args):
     from .._analyses.budget import bond_budget
+
+    return bond_budget(prof, target=args.target, total=args.total, split=args.split,
+                       dtype=args.dtype, local_dim=args.local_dim)
+
+
+def _run(args):
+    import warnings
+
+    from .._analyses.budget import ResolutionError
+    from .._document import is_saved_profile
     from .._estimate import format_bytes
 
     prof = read_input(args.file, args, spectrum=True)
-    res = bond_budget(prof, target=args.target, total=args.total, split=args.split,
-                      dtype=args.dtype, local_dim=args.local_dim)
+    try:
+        res = _budget(prof, args)
+    except ResolutionError as exc:
+        # a state vector profiled on the gram route: its floor hides the target; use svd
+        if is_saved_profile(args.file) or prof.get("route") != "gram":
+            raise
+        warnings.warn(f"{exc}; switching to the accurate (svd) route")
+        res = _budget(read_input(args.file, args, spectrum=True, route="svd"), args)
     if args.json:
         print_json(res)
         return 0
     goal = (f"target {res['target']:g} per cut" if res["target"] is not None
             else f"total {res['total']:g} ({res['split']} split)")
     print(f"{goal}: max bond dimension {res['max_bond_dimension']}, discarded weight sum "
-          f"{res['discarded_weight_sum']:.3g}")
+          f"<= {res['discarded_weight_sum']:.3g}")
+    print(f"Schmidt values counted above each cut's resolution floor (largest "
+          f"{res['resolution_floor']:.2g}, {res['route'] or 'unknown'} route); weights are "
+          "upper bounds including what the floor can hide")
     print(f"{'cut':>5} {'chi':>6} {'now':>6} {'discarded':>11}")
     for c in res["cuts"]:
         print(f"{c['position']:>5} {c['bond_dimension']:>6} {c['current_bond_dimension']:>6} "
-              f"{c['discarded_weight']:>11.3g}")
+              f"{'<=' if c['unresolved_bound'] > 0 else '  '}{c['discarded_weight']:>9.3g}")
     if res["memory_bytes"] is None:
         print("cost: unknown without local dimensions (give --local-dim)")
     else:

@@ -14,11 +14,29 @@ def add_arguments(p):
     p.add_argument("--series", default="auto",
                    help="bond (runs at growing bond dimension), time (snapshots), or auto "
                         "(default: time when every document has a time field)")
+    p.add_argument("--runs", metavar="K|NAMES", type=_runs,
+                   help="bond series: extrapolate from the last K runs (smallest weights) or "
+                        "the runs named, comma-separated (default: the last 3)")
+    p.add_argument("--form", default="wlogw",
+                   help="extrapolation S = S0 + a g(w): wlogw, g = w (1 + ln(1/w)) (default), "
+                        "or linear, g = w")
     p.add_argument("--json", action="store_true", help="print the result as JSON")
     add_flags(p, *LAYOUT_FLAGS, "route", "precision", *RESOURCE_FLAGS)
 
 
+def _runs(text):
+    names = [t.strip() for t in text.split(",") if t.strip()]
+    return int(names[0]) if len(names) == 1 and names[0].isdigit() else names
+
+
 def run(args):
+    from ._warnings import quiet_warnings
+
+    with quiet_warnings(args.quiet):
+        return _run(args)
+
+
+def _run(args):
     from pathlib import Path
 
     from .._analyses.comparison import checkpoint_meta, compare_profiles
@@ -26,7 +44,8 @@ def run(args):
     profs = [read_input(f, args) for f in args.files]
     res = compare_profiles(profs, tol=args.tol, series=args.series,
                            names=[Path(f).name for f in args.files],
-                           meta=[checkpoint_meta(f) for f in args.files])
+                           meta=[checkpoint_meta(f) for f in args.files], runs=args.runs,
+                           form=args.form)
     if args.json:
         print_json(res)
         return 0
@@ -45,8 +64,10 @@ def run(args):
     elif res["extrapolation"] is None:
         print(f"no extrapolation: {res['extrapolation_note']}")
     else:
-        ext = res["extrapolation"]["entropies"]
-        mid = len(ext) // 2
-        print(f"extrapolated to zero discarded weight: S({res['positions'][mid]}) = "
-              f"{ext[mid]:.6g} nats")
+        ext = res["extrapolation"]
+        mid = len(ext["entropies"]) // 2
+        print(f"extrapolated to zero discarded weight ({ext['form']}, runs "
+              f"{', '.join(ext['runs'])}): S({res['positions'][mid]}) = "
+              f"{ext['entropies'][mid]:.8g} +- {ext['errors'][mid]:.2g} nats "
+              f"({ext['methods'][mid]})")
     return 0

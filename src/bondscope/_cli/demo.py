@@ -42,8 +42,9 @@ def run(args):
     prof.save(args.output, protect=[path])
     print(profile_table(prof))
     fit = fit_scaling(prof, boundary="open")
-    print(f"scaling law {fit['law']}: central charge c = {fit['central_charge']:.4f} "
-          f"+- {fit['central_charge_error']:.4f} (open-chain fit over cuts "
-          f"{fit['window'][0]}..{fit['window'][1]})")
+    c = (f"central charge c = {fit.central_charge:.4f} +- {fit.central_charge_error:.4f}"
+         if fit.law == "logarithmic" else fit.law_reason)
+    print(f"scaling law {fit.law}: {c} (open-chain fit over cuts "
+          f"{fit.window[0]}..{fit.window[1]})")
     print(f"profile written to {args.output}")
     return 0

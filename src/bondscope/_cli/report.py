@@ -13,7 +13,7 @@ def add_arguments(p):
     p.add_argument("--title", help="page heading (default: the directory's name)")
     p.add_argument("--no-fit", action="store_true",
                    help="no central-charge fit (in the table or the entropy figures)")
-    add_flags(p, *FIT_FLAGS)
+    add_flags(p, *FIT_FLAGS, "quiet")
 
 
 def run(args):
@@ -22,7 +22,7 @@ def run(args):
     from ._warnings import quiet_warnings
     from .plot import fit_choice
 
-    with quiet_warnings():
+    with quiet_warnings(args.quiet):
         path = write_report(args.results, args.output, title=args.title, fit=fit_choice(args))
     print(f"report written to {visible(path)}")
     return 0

@@ -31,12 +31,13 @@ def _inverse_bond(entry):
     return 1.0 / chi
 
 
-def _limit(members, x):
-    """The comparison's extrapolation S = S0 + a x at the middle cut, in nats.
+def _limit(members, x, form):
+    """The comparison's extrapolation S = S0 + a g(x) at the middle cut, in nats.
 
     Each profile goes to :func:`bondscope._analyses.comparison.compare_profiles` with
     ``x`` as its run-level ``discarded_weight`` (and its own truncation
-    fields left out), so the extrapolation is linear in the plotted quantity.
+    fields left out): g(w) = w (1 + ln(1/w)) against the weight, g = x
+    against 1/chi.
     """
     from .._analyses.comparison import compare_profiles
 
@@ -48,7 +49,7 @@ def _limit(members, x):
             cut.pop("discarded_weight", None)
         doc["discarded_weight"] = float(xv)
         docs.append(doc)
-    result = compare_profiles(docs, series="bond")
+    result = compare_profiles(docs, series="bond", form=form)
     fit = result["extrapolation"]
     if fit is None:
         raise ValueError(f"no extrapolation: {result['extrapolation_note']}")
@@ -56,7 +57,8 @@ def _limit(members, x):
     if middle not in result["positions"]:
         raise ValueError(f"no common cut at the middle position {middle}")
     at = result["positions"].index(middle)
-    return {"position": middle, "value": fit["entropies"][at], "slope": fit["slopes"][at],
+    return {"position": middle, "value": fit["entropies"][at], "slope": fit["slopes"][at] or 0.0,
+            "error": fit["errors"][at], "method": fit["methods"][at], "form": form,
             "units": "nats", "converged": result["converged"], "verdict": result["verdict"]}
 
 
@@ -67,8 +69,8 @@ def convergence_figure(sources, *, against="weight", title=None, options=None,
 
     Sources are grouped by their ``series`` (from a batch; otherwise all are
     one group).  Each group is extrapolated to zero by the comparison's
-    linear fit (:func:`bondscope._analyses.comparison.compare_profiles`) in the
-    plotted quantity; the left panel shows the fit reaching the axis, the
+    fit (:func:`bondscope._analyses.comparison.compare_profiles`): S0 + a w (1 + ln(1/w))
+    against the weight w, linear in 1/χ; the left panel shows the fit reaching the axis, the
     right one the same points on a logarithmic axis against the limit.
 
     Parameters
@@ -93,6 +95,8 @@ def convergence_figure(sources, *, against="weight", title=None, options=None,
         Fewer than two sources in a group, a source without the x quantity,
         or equal x for all sources.
     """
+    from .._analyses.extrapolation import correction
+
     measure = {"weight": _discarded, "bond": _inverse_bond}.get(against)
     if measure is None:
         raise ValueError(f"against must be 'weight' or 'bond', found {against!r}")
@@ -115,11 +119,13 @@ def convergence_figure(sources, *, against="weight", title=None, options=None,
             members.sort(key=lambda m: -measure(m[0]))
             x = np.array([measure(e) for e, _ in members])
             y = np.array([_middle(e) * k for e, k in members])
-            limit = _limit(members, x)
+            form = "wlogw" if against == "weight" else "linear"
+            limit = _limit(members, x, form)
             value, slope = limit["value"] * to_unit, limit["slope"] * to_unit
             look = curve_look(i, len(groups))
-            grid = np.linspace(0.0, x.max() * 1.05, 50)
-            ax.plot(grid, value + slope * grid, color=look["color"], lw=1.0, ls=(0, (4, 2)))
+            grid = np.linspace(0.0, x.max() * 1.05, 200)
+            ax.plot(grid, value + slope * correction(grid, form), color=look["color"], lw=1.0,
+                    ls=(0, (4, 2)))
             ax.plot(x, y, ls="none", label=figure_text(name) if name else "middle-cut entropy",
                     **look)
             ax.plot([0.0], [value], marker="*", ms=12, mfc="white", mec=look["color"],
@@ -128,6 +134,7 @@ def convergence_figure(sources, *, against="weight", title=None, options=None,
             zoom.plot(x, y, ls="-", lw=0.8, **look)
             marks.append((members, x, y))
             limits.append({"series": name, **limit, "value": value, "slope": slope,
+                           "error": limit["error"] * to_unit,
                            "units": entropy_unit(base)})
         ax.set_xlim(left=0.0)
         ax.set_xlabel(xlabel)

@@ -192,15 +192,18 @@ def fit_entries(entries, settings, boundary=None):
     """
     from .._analyses.scaling import fit_scaling
 
-    kinds = [(settings or {}).get("boundary") or boundary or e.meta.get("boundary") or "open"
-             for e in entries]
+    given = (settings or {}).get("boundary") or boundary
+    sources = ["given" if given else "profile field" if e.profile.get("boundary") else
+               "checkpoint attribute" if e.meta.get("boundary") else "default" for e in entries]
+    kinds = [given or e.meta.get("boundary") or "open" for e in entries]
     if settings is None:
         return kinds, None
     fits = []
-    for entry, kind in zip(entries, kinds):
+    for entry, kind, source in zip(entries, kinds, sources):
         try:
-            fits.append({"label": entry.label,
-                         **fit_scaling(entry.profile, **{**settings, "boundary": kind})})
+            found = fit_scaling(entry.profile, **{**settings, "boundary": kind})
+            found = found.to_dict() if hasattr(found, "to_dict") else dict(found)
+            fits.append({"label": entry.label, **found, "boundary_source": source})
         except ValueError as exc:
             fits.append({"label": entry.label, "error": one_line(exc)})
     return kinds, fits
@@ -211,9 +214,9 @@ def _abscissa(against, positions, sites, boundary):
         return positions
     if against == "fraction":
         return positions / sites
-    from .._analyses.scaling import _chord
+    from .._analyses.models import chord
 
-    return np.log(_chord(positions, sites, boundary))
+    return np.log(chord(positions, sites, boundary))
 
 
 def _draw_fit(ax, res, fit, prof, x, s, base, look):
@@ -270,9 +273,11 @@ def _law_text(fit, base):
     boundary = fit.get("boundary", "open")
     terms = [f"(c/{'6' if boundary == 'open' else '3'}) {_log_text(base)} x", "s₀"]
     corrections = fit.get("corrections") or ()
-    if "parity" in corrections:
-        k = fit.get("parity_exponent", 1.0)
-        terms.append("b (−1)ˡ/x" + ("" if k == 1 else f"^{k:g}"))
+    if "parity" in corrections and fit.get("parity_form") == "su2":
+        terms.append("b (−1)ˡ √(ln x)/√x")
+    elif "parity" in corrections:
+        k = fit.get("parity_exponent") or 1.0
+        terms.append("b (−1)ˡ/x" + ("" if k == 1 else f"^{k:.3g}"))
     if "smooth" in corrections:
         terms.append("f/x")
     return (f"fit, {boundary} chain:\nS = " + " + ".join(terms) +

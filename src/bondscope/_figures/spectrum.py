@@ -87,7 +87,8 @@ def _groups(entry, tol):
 
     prof = entry.profile
     longest = max(len(v) for v in prof.spectra)
-    report = spectrum_diagnostics(prof, levels=max(longest, 1), tol=tol, weight_floor=0.0)
+    report = spectrum_diagnostics(prof, levels=max(longest, 1), tol=tol, weight_floor=0.0,
+                                  accuracy=0.0)
     cuts = report["cuts"]
     x = np.concatenate([np.full(len(c["levels"]), c["position"]) for c in cuts])
     y = np.concatenate([c["levels"] for c in cuts]).astype(float)

@@ -15,7 +15,9 @@ import math
 import numpy as np
 
 from .._errors import CheckpointError
+from .._source import source_eps
 from .store import BondStore
+from .transfer import left_step as _gram_left
 
 __all__ = ["renyi2_sweeps", "Renyi2", "mixed_cost", "HERMITIAN_TOLERANCE"]
 
@@ -49,26 +51,12 @@ class Renyi2:
         self.trace, self.hermiticity = trace, hermiticity
 
 
-def _unit(src):
-    """Unit roundoff of the work: the compute dtype's, or the stored data's when coarser
-    (float32 checkpoints carry only their own precision)."""
-    stored = src.dtype if src.dtype.kind in "fc" else np.dtype(np.float64)
-    return max(float(np.finfo(src.compute_dtype).eps), float(np.finfo(stored).eps))
-
-
 def _scaled(x):
     """(x / ||x||, ln ||x||); a zero x gives (x, -inf)."""
     n = float(np.linalg.norm(x))
     if not n > 0:
         return x, -math.inf
     return x / n, math.log(n)
-
-
-def _gram_left(g, w):
-    """Left Gram step of a chain whose site is (left, m, right): sum conj(w) g w."""
-    a, m, b = w.shape
-    gw = (g @ w.reshape(a, m * b)).reshape(a * m, b)
-    return w.reshape(a * m, b).conj().T @ gw
 
 
 def _gram_right(g, w):
@@ -133,7 +121,7 @@ def _dm_renyi2(src, store, tick):
     quads, (tr, ltr, lscale), (hs, lhs), (sq, lsq) = _dm_sweeps(src, store, tick)
     chi = max(max(s[0], s[3]) for s in src.shapes4)
     d2 = max(s[1] * s[2] for s in src.shapes4)
-    u = _unit(src)
+    u = source_eps(src)
     n = src.sites
     gamma = _SAFETY * u * n * chi * d2
     if not hs > 0:
@@ -245,7 +233,7 @@ def _purified_renyi2(src, store, tick):
         tick()
     chi = max(max(s[0], s[3]) for s in src.shapes4)
     dd = max(s[1] * s[2] for s in src.shapes4)
-    u = _unit(src)
+    u = source_eps(src)
     step_q = _SAFETY * u * n * 4 * chi * dd
     rel_t = _SAFETY * u * n * chi * dd / norm2[0]
     quads = [(qa, la, qb, lb) for (qa, la), (qb, lb) in zip(lefts, rights)]
