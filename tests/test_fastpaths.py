@@ -194,7 +194,8 @@ def test_bond_values_as_dask_tasks(processes):
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", bondscope.UnnormalisedStateWarning)
             prof = bondscope.profile(tensors, spectrum=True)
-        prefixes = client.run_on_scheduler(lambda dask_scheduler: list(dask_scheduler.task_prefixes))
+        prefixes = client.run_on_scheduler(
+            lambda dask_scheduler: list(dask_scheduler.task_prefixes))
     assert "product_values" in prefixes          # dask keys drop the leading underscore
     _close(prof.spectra, ref, 200 * _eps(np.float64) * 16 * 2)
     assert parallel.dask_client() is None

@@ -236,7 +236,7 @@ CASES = [
      (CE, "shaped (2, 0, 2), which holds no amplitudes", 3)),     # once ZeroDivisionError
     (fifo, {}, (CE, "is a FIFO (named pipe), not a regular file", 3)),  # once hung for ever
     (unix_socket, {}, (CE, "is a socket, not a regular file", 3)),   # refused before open
-    (lambda t: (t, None, None), {}, (CE, "is a directory", 2)),    # a directory: the CLI points to batch
+    (lambda t: (t, None, None), {}, (CE, "is a directory", 2)),    # a directory: use batch
     (rewritten, {}, (CE, "the file's groups could not be read", 3)),  # "Object visitation"
 ]
 
