@@ -5,7 +5,8 @@ Regenerate everything that is committed (about 15 seconds)::
     python scripts/make_data.py
 
 Parts can be written alone with ``--only demo``, ``--only series``,
-``--only fixtures``, ``--only charges`` or ``--only mixed``. Large checkpoints (not committed) are written on
+``--only fixtures``, ``--only charges`` or ``--only mixed``. Large checkpoints (not
+committed) are written on
 demand::
 
     python scripts/make_data.py --large out/large            # L = 100, 200, 500
@@ -213,11 +214,13 @@ REFERENCE_NOTE = "reference.freefermion.ising_entropies(6, 1.0): open critical I
 FIXTURES = {
     "mps_basic.h5": ("/run/psi/T{site}", "rank-3 left,phys,right, numbered from 0, float64"),
     "mps_permuted.h5": ("/mps/W{site}", "axes stored phys,right,left (attribute axes)"),
-    "mps_groups_one_based.h5": ("/chain/site_{site}/data", "one group per site, from 1, complex128"),
+    "mps_groups_one_based.h5": ("/chain/site_{site}/data",
+                                "one group per site, from 1, complex128"),
     "mps_float32.h5": ("/tensors/A{site}", "float32"),
     "mps_compound.h5": ("/psi/B{site}", "complex128 as compound (re, im)"),
     "mps_compound_f32.h5": ("/psi/B{site}", "complex64 as compound (real, imag)"),
-    "mps_rank2_ends.h5": ("/run/psi/T{site}", "rank-2 ends: first (phys, right), last (left, phys)"),
+    "mps_rank2_ends.h5": ("/run/psi/T{site}",
+                          "rank-2 ends: first (phys, right), last (left, phys)"),
     "state_flat.h5": ("/wavefunction", "1-D state vector, float64, length 2**6"),
     "state_nd.h5": ("/ground/psi", "N-D state vector (2,)*6, complex64"),
     "aklt_edges.h5": ("/vbs/site{site}", "AKLT with spin-1/2 edges, local dims 2,3,3,3,3,2"),

@@ -25,7 +25,10 @@ def spectra_doc(spectra, *, local_dims=None, **top):
 
 
 def geometric(q, K):
-    """Schmidt values with weights q^k / sum, k = 0..K-1 (tail after chi: (q^chi - q^K)/(1 - q^K))."""
+    """Schmidt values with weights q^k / sum, k = 0..K-1.
+
+    The tail after chi is (q^chi - q^K)/(1 - q^K).
+    """
     w = q ** np.arange(K)
     return np.sqrt(w / w.sum())
 

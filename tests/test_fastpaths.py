@@ -21,6 +21,7 @@ from threadpoolctl import threadpool_limits
 import bondscope
 from bondscope._kernels import amplitudes, chain, parallel
 from bondscope._kernels import store as bond_store
+from bondscope._kernels.balance import SweepScales
 from bondscope._kernels.conditioning import GaugeLedger
 from bondscope._errors import CheckpointError
 from bondscope._source import chain_from_arrays
@@ -93,6 +94,10 @@ CHAINS = [
 ]
 
 
+def _scales(src):
+    return SweepScales(src.sites, src.name, src.labels)
+
+
 @pytest.mark.parametrize("dims, bonds, dtype, scramble", CHAINS)
 def test_concurrent_sweeps_match_sequential_and_svd(dims, bonds, dtype, scramble):
     # the two sweeps side by side give the plain order's values; both match scipy svdvals
@@ -105,10 +110,11 @@ def test_concurrent_sweeps_match_sequential_and_svd(dims, bonds, dtype, scramble
     ledgers = [GaugeLedger(src.sites), GaugeLedger(src.sites)]
     with bond_store.BondStore() as store:
         both = _normalised(chain._concurrent_chain(src, store, lambda: None, chain._product_values,
-                                                   ledgers[0]))
+                                                   ledgers[0], _scales(src)))
     with bond_store.BondStore() as store:
         plain = _normalised(chain._sequential_chain(src, store, lambda: None,
-                                                    chain._product_values, ledgers[1])[0])
+                                                    chain._product_values, ledgers[1],
+                                                    _scales(src))[0])
     tol = 200 * _eps(dtype) * max(bonds) * max(dims)
     _close(both, ref, tol)
     _close(both, plain, tol)
@@ -147,10 +153,11 @@ def test_concurrent_sweeps_spill_and_clean_up(tmp_path, monkeypatch):
     dims, bonds = [2] * 8, [2, 4, 8, 8, 8, 4, 2]
     tensors = random_chain(rng, dims, bonds)
     ref = direct_spectra(contract(tensors), dims)
+    src = chain_from_arrays(tensors)
     with bond_store.BondStore(str(tmp_path / "scr")) as store:
-        got = _normalised(chain._concurrent_chain(chain_from_arrays(tensors), store,
-                                                   lambda: None, chain._product_values,
-                                                   GaugeLedger(len(tensors))))
+        got = _normalised(chain._concurrent_chain(src, store, lambda: None,
+                                                   chain._product_values,
+                                                   GaugeLedger(len(tensors)), _scales(src)))
         assert store.spilled
     _close(got, ref, 1e-13)
     assert list((tmp_path / "scr").iterdir()) == []
@@ -165,10 +172,11 @@ def test_failure_in_either_sweep_stops_both(bad_site):
     rng = np.random.default_rng(24)
     tensors = random_chain(rng, [2] * 8, [2, 4, 8, 8, 8, 4, 2])
     tensors[bad_site][0, 0, 0] = np.nan
+    src = chain_from_arrays(tensors)
     with bond_store.BondStore() as store:
         with pytest.raises(CheckpointError, match="NaN"):
-            chain._concurrent_chain(chain_from_arrays(tensors), store, lambda: None,
-                                     chain._product_values, GaugeLedger(len(tensors)))
+            chain._concurrent_chain(src, store, lambda: None, chain._product_values,
+                                    GaugeLedger(len(tensors)), _scales(src))
 
 
 @pytest.mark.parametrize("processes", [False, True])   # threads of this process, then workers
@@ -186,7 +194,8 @@ def test_bond_values_as_dask_tasks(processes):
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", bondscope.UnnormalisedStateWarning)
             prof = bondscope.profile(tensors, spectrum=True)
-        prefixes = client.run_on_scheduler(lambda dask_scheduler: list(dask_scheduler.task_prefixes))
+        prefixes = client.run_on_scheduler(
+            lambda dask_scheduler: list(dask_scheduler.task_prefixes))
     assert "product_values" in prefixes          # dask keys drop the leading underscore
     _close(prof.spectra, ref, 200 * _eps(np.float64) * 16 * 2)
     assert parallel.dask_client() is None

@@ -15,8 +15,7 @@ from bondscope._cli import main  # noqa: E402
 from bondscope._figures._kinds import plot  # noqa: E402
 from bondscope._figures._style import OKABE_ITO, save_figure  # noqa: E402
 from bondscope._text import entropy_unit  # noqa: E402
-from plotdata import (PNG_MAGIC, ROOT, batch_dir, series_checkpoints, spin_one_checkpoint,  # noqa: E402
-                      time_checkpoints)
+from plotdata import (PNG_MAGIC, ROOT, batch_dir, series_checkpoints, time_checkpoints)
 from reference import freefermion, states  # noqa: E402
 
 DEMO = ROOT / "data" / "demo.h5"

@@ -43,7 +43,8 @@ MPO_CASES = [
     # transverse-field Ising, critical field
     pytest.param(lambda L: groundstate.tfim_mpo(L, 1.0), lambda L: spin.tfim(L, 1.0), id="tfim"),
     # transverse-field Ising, ordered side
-    pytest.param(lambda L: groundstate.tfim_mpo(L, 0.3), lambda L: spin.tfim(L, 0.3), id="tfim-0.3"),
+    pytest.param(lambda L: groundstate.tfim_mpo(L, 0.3), lambda L: spin.tfim(L, 0.3),
+                 id="tfim-0.3"),
     # XX chain
     pytest.param(groundstate.xx_mpo, spin.xx, id="xx"),
     # anisotropic XXZ with J != 1

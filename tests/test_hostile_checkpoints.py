@@ -21,8 +21,10 @@ import pytest
 
 import bondscope
 from bondscope._cli import main
+from bondscope._source import chain_from_arrays
 from bondscope._text import profile_table
-from builders import WORDS, contract, direct_spectra, random_chain, write_chain
+from builders import WORDS, contract, direct_spectra, random_chain, scramble_gauge, write_chain
+from reference import charges as charge_ref
 
 SEED = 31
 QUBITS = 10
@@ -234,7 +236,7 @@ CASES = [
      (CE, "shaped (2, 0, 2), which holds no amplitudes", 3)),     # once ZeroDivisionError
     (fifo, {}, (CE, "is a FIFO (named pipe), not a regular file", 3)),  # once hung for ever
     (unix_socket, {}, (CE, "is a socket, not a regular file", 3)),   # refused before open
-    (lambda t: (t, None, None), {}, (CE, "is a directory", 2)),    # a directory: the CLI points to batch
+    (lambda t: (t, None, None), {}, (CE, "is a directory", 2)),    # a directory: use batch
     (rewritten, {}, (CE, "the file's groups could not be read", 3)),  # "Object visitation"
 ]
 
@@ -400,3 +402,153 @@ def test_demo_ground_state_at_any_scale(tmp_path, factor, rescaled):
         for i in range(src.sites):
             src.tensor(i)
         assert (src.scale_exponent != 0) is rescaled
+
+
+# --- long chains: every tensor moderate, their product past the range ----------------
+
+def _long_tensors(kind, sites):
+    """``sites`` tensors whose largest |entry| is 1: the moderate chain, the reference.
+
+    ``plain``: random, bonds 4 (the QR sweeps); ``blocks``: qubits conserving a total
+    charge 2, bonds <= 6 (the block-wise sweep); ``mixed``: the same state in a random
+    gauge that mixes the charges (the charge sweep).
+    """
+    rng = np.random.default_rng(SEED)
+    if kind == "plain":
+        tensors = random_chain(rng, [2] * sites, [4] * (sites - 1))
+    else:
+        tensors, _ = charge_ref.random_symmetric_chain(
+            rng, [np.array([[0], [1]])] * sites, (0,), (2,), 2)
+        if kind == "mixed":
+            tensors = scramble_gauge(rng, tensors)
+    return [a / np.abs(a).max() for a in tensors]
+
+
+_MODERATE = {}
+
+
+def _long_profile(tensors, dtype, options, key=None):
+    """Profile of the chain as ``dtype`` arrays; the moderate one (``key``) once per key."""
+    if key in _MODERATE:
+        return _MODERATE[key]
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", bondscope.UnnormalisedStateWarning)
+        warnings.simplefilter("ignore", bondscope.ResolutionWarning)   # float32, mixed gauge
+        prof = bondscope.profile([a.astype(dtype) for a in tensors], spectrum=True,
+                                 **options)
+    if key is not None:
+        _MODERATE[key] = prof
+    return prof
+
+
+F32, F64, STORED = np.float32, np.float64, {"precision": "stored"}
+LONG = [
+    # (tensors, sites, factor per tensor, stored dtype, options): products leave the range
+    # of the compute dtype although no tensor does (the loader leaves each as stored);
+    # 200^150 = 1e345, 1e-3^150 = 1e-450, 1e-15^24 = 1e-360; float32: 200^24 = 2^183
+    ("plain", 150, 200.0, F64, {}),                        # once "A has a NaN entry"
+    ("plain", 150, 1e-3, F64, {}),                         # once "zero norm"
+    ("plain", 150, 200.0, F64, {"bond_dim": 2}),           # the truncating sweep too
+    ("plain", 150, 200.0, F32, {}),                        # float32, computed in double
+    ("plain", 150, 200.0, F32, STORED),                    # float32 arithmetic (2^128)
+    ("plain", 150, 1e-3, F32, STORED),                     # ... underflowing
+    ("blocks", 24, 1e-15, F64, {"charges": "0,1"}),        # block-wise sweep
+    ("blocks", 24, 200.0, F32, {"charges": "0,1", **STORED}),   # ... float32 overflow
+    ("mixed", 24, 1e-15, F64, {"charges": "0,1"}),         # charge sweep, any gauge
+    ("mixed", 24, 200.0, F32, {"charges": "0,1", **STORED}),    # ... float32 overflow
+]
+
+
+def _entropy_bound(t, k):
+    """Largest entropy change (nats) of k weights moved by total variation t (Audenaert,
+    J. Phys. A 40, 8127 (2007): |S - S'| <= t ln(k - 1) + H(t), t <= 1/2)."""
+    t = min(t, 0.5)
+    return t * math.log(max(k - 1, 1)) + (-t * math.log(t) - (1 - t) * math.log1p(-t)
+                                          if t > 0 else 0.0)
+
+
+@pytest.mark.parametrize("kind, sites, factor, dtype, options", LONG)
+def test_long_chain_at_any_scale(kind, sites, factor, dtype, options):
+    # Schmidt values do not depend on the state's scale (common practice): the scaled
+    # chain gives the moderate chain's spectra, sectors and truncation, and its norm
+    # times factor^N
+    tensors = _long_tensors(kind, sites)
+    scaled = [(a * factor).astype(dtype) for a in tensors]
+    src = chain_from_arrays(scaled, precision=options.get("precision", "promote"))
+    for i in range(sites):
+        src.tensor(i)
+    assert src.scale_exponent == 0              # the sweep, not the loader, rescales
+    ref = _long_profile(tensors, dtype, options, (kind, sites, np.dtype(dtype).name,
+                                                  str(options)))
+    prof = _long_profile(scaled, dtype, options)
+    assert prof["route"] == ref["route"] and ("charges" in options) is \
+        (prof["route"] in ("block-sweep", "charge-sweep"))
+    # the factor rounded once per tensor moves the state by at most N eps (relative)
+    rounding = 4 * sites * float(np.finfo(dtype).eps)
+    for got, want in zip(prof.cuts, ref.cuts):
+        # the floors bound the gauge's rounding, which does not depend on the scale
+        assert got["resolution_floor"] == pytest.approx(want["resolution_floor"], rel=0.01)
+        tol = float(rounding + got["resolution_floor"] + want["resolution_floor"])
+        a, b = np.array(got["schmidt_values"]), np.array(want["schmidt_values"])
+        k = min(a.size, b.size)
+        np.testing.assert_allclose(a[:k], b[:k], rtol=0, atol=tol)
+        assert np.all(a[k:] <= tol) and np.all(b[k:] <= tol)
+        # each weight lambda^2 moves by at most 2 tol (lambda <= 1)
+        spread = max(a.size, b.size)
+        assert got["entropy"] == pytest.approx(
+            want["entropy"], abs=_entropy_bound(spread * tol, spread) + tol)
+        for g, w in zip(got.get("sectors", []), want.get("sectors", [])):
+            assert g["charge"] == w["charge"]
+            assert g["probability"] == pytest.approx(w["probability"], abs=tol)
+    if "bond_dim" in options:
+        assert prof["truncation"]["infidelity"] == pytest.approx(
+            ref["truncation"]["infidelity"], abs=rounding)
+    doc, want = prof.to_dict(), ref.to_dict()
+    json.dumps(doc, allow_nan=False)            # finite numbers only
+    log2 = math.log2(doc["norm"]) + doc.get("norm_exponent", 0)
+    expected = math.log2(want["norm"]) + want.get("norm_exponent", 0) \
+        + sites * math.log2(factor)
+    # the norm moves by the same relative N eps; log2 of ~1e3 is itself rounded
+    assert log2 == pytest.approx(expected, abs=rounding / math.log(2) + 4 * abs(expected)
+                                 * float(np.finfo(float).eps))
+
+
+_BIG = np.array([[3 * 2.0 ** 700, -1.0], [0.0, 2.0 ** 690]])
+BALANCE = [
+    # (bond matrix or sector blocks, exponent removed, or the error's fragment)
+    (_BIG, 702, None),                                       # 3 x 2^700 = 0.75 x 2^702
+    (np.ldexp(_BIG, -1400), -698, None),                     # tiny: scaled up
+    (np.array([[1.0, 1e3j]], dtype=np.complex64), 10, None),  # imaginary part largest
+    (np.zeros((2, 2)), 0, None),                             # zero: left alone
+    ({(0,): _BIG, (1,): np.ones((1, 1))}, 702, None),        # sectors: one exponent
+    (np.array([[1.0, np.nan]]), None, "holds NaN or Inf"),   # non-finite: named
+    (np.array([[np.inf]], dtype=np.complex64), None, "--precision promote"),  # float32 hint
+]
+
+
+@pytest.mark.parametrize("matrix, exponent, fragment", BALANCE)
+def test_bond_matrices_are_balanced_exactly(matrix, exponent, fragment):
+    # a power of two changes only exponents (IEEE 754): the result is exact
+    from bondscope._kernels.balance import balanced, balanced_blocks
+
+    name = "ck.h5:/psi/T{site}"
+    scale = balanced_blocks if isinstance(matrix, dict) else balanced
+    work = {k: v.copy() for k, v in matrix.items()} if isinstance(matrix, dict) \
+        else matrix.copy()                      # the kernels' own matrices: overwritten
+    if fragment is not None:
+        with pytest.raises(bondscope.CheckpointError) as info:
+            scale(work, name, 7)
+        message = str(info.value)
+        assert fragment in message and "\n" not in message
+        assert message.startswith(f"{name}: site 7: ")
+        return
+    out, e = scale(work, name, 7)
+    assert e == exponent
+    pairs = [(out[k], matrix[k]) for k in matrix] if isinstance(matrix, dict) \
+        else [(out, matrix)]
+    for got, was in pairs:
+        assert got.dtype == was.dtype
+        assert np.array_equal(got.real, np.ldexp(was.real, -e))
+        assert np.array_equal(got.imag, np.ldexp(was.imag, -e))
+    top = max(float(np.abs(np.stack([g.real, g.imag])).max()) for g, _ in pairs)
+    assert 0.5 <= top < 1 or not e              # the largest entry now in [1/2, 1)

@@ -123,7 +123,8 @@ PESCHEL_CASES = [
     pytest.param("xx", 10, None, "periodic", id="xx-ring-L10"),
     # XX ring, L = 0 mod 4: antiperiodic orbitals, closed shell
     pytest.param("xx", 12, None, "periodic", id="xx-ring-L12"),
-    # critical Ising, open (Majorana covariance; Vidal, Latorre, Rico, Kitaev, PRL 90, 227902 (2003))
+    # critical Ising, open (Majorana covariance;
+    # Vidal, Latorre, Rico, Kitaev, PRL 90, 227902 (2003))
     pytest.param("tfim", 12, 1.0, "open", id="ising-crit-open"),
     # critical Ising ring, even-parity sector
     pytest.param("tfim", 12, 1.0, "periodic", id="ising-crit-ring"),

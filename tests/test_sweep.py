@@ -199,7 +199,8 @@ def test_single_precision_stored_and_promoted():
     assert promoted.get("precision") == "float64" and stored.get("precision") == "float32"
     eps32 = float(np.finfo(np.float32).eps)
     for prof in (promoted, stored):
-        assert np.all(prof.column("resolution_floor") >= eps32 * np.array([s[0] for s in prof.spectra]))
+        largest = np.array([s[0] for s in prof.spectra])
+        assert np.all(prof.column("resolution_floor") >= eps32 * largest)
 
 
 def test_unnormalised_state_is_normalised_with_warning():

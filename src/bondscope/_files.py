@@ -18,7 +18,8 @@ import numpy as np
 from ._document import FORMAT
 from ._errors import CheckpointError, one_line
 
-__all__ = ["atomic_write", "remove_stale_parts", "STALE_SECONDS", "format_of", "SUFFIXES", "H5_GROUP", "json_default", "json_text",
+__all__ = ["atomic_write", "remove_stale_parts", "STALE_SECONDS", "format_of", "SUFFIXES",
+           "H5_GROUP", "json_default", "json_text",
            "csv_text", "write_h5_group", "read_h5_group", "is_profile_h5", "refuse_overwrite",
            "write_document", "read_document", "csv_cell"]
 

@@ -234,7 +234,8 @@ def profile(source, options=None, *, progress=False, **kwargs):
         with _threads(opts.threads), _progress(steps(src), progress, "profile") as bar:
             result, bonds = kernel(src, opts, bar.update if bar is not None else None)
         # past the double range: norm = mantissa x 2^norm_exponent (bondscope._exponent)
-        norm = stored_norm(result.norm, getattr(src, "scale_exponent", 0))
+        norm = stored_norm(result.norm, getattr(src, "scale_exponent", 0)
+                           + getattr(result, "norm_exponent", 0))
         if norm[1]:
             warnings.warn(f"{src.name}: state norm is {norm_text(*norm)}; profiled the "
                           "normalised state", UnnormalisedStateWarning, stacklevel=2)

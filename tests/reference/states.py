@@ -85,7 +85,7 @@ def from_vector(psi, dims):
         U, S, Vh = np.linalg.svd(rest.reshape(a * d, -1), full_matrices=False)
         top = U[np.argmax(np.abs(U), axis=0), np.arange(U.shape[1])]
         phase = np.where(top == 0, 1.0, top / np.abs(top))
-        U, Vh = U / phase, phase.conj()[:, None] * Vh
+        U, Vh = U / phase, phase[:, None] * Vh
         tensors.append(U.reshape(a, d, -1))
         rest = S[:, None] * Vh
     tensors.append(rest.reshape(rest.shape[0], dims[-1], 1))

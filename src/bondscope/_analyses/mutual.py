@@ -287,6 +287,9 @@ def mutual_information(source, options=None, *, select=0.1, reorder=True, swap_b
                                 or workers < 1):
         raise ValueError(f"workers (--workers) must be an integer >= 1, found {workers!r}")
     with open_any(source, opts) as src:
+        if src.kind not in ("mps", "state-vector"):
+            raise ValueError(f"{src.name}: mutual information of a {src.kind} source is not "
+                             "supported; give an open chain (MPS) or a state vector")
         if hasattr(src, "blocks"):
             raise ValueError("mutual information of block-sparse checkpoints is not supported; "
                              "give a dense layout (--state or --tensors)")

@@ -65,7 +65,8 @@ def finite_chi(prof, positions):
 
     A cut is *capped* when its bond dimension (else Schmidt rank) equals the
     run's bond dimension chi (the document's ``bond_dim``, else for an MPS
-    its largest stored bond dimension when at least ``PLATEAU`` cuts share it) while the cut could hold more
+    its largest stored bond dimension when at least ``PLATEAU`` cuts share it) while the cut
+    could hold more
     (``local_dims`` known: chi below the smaller side's dimension).  The
     weight it stands for is the larger of ``TAIL_FACTOR`` times its
     smallest stored lambda^2 (complete spectra only) and the run's

@@ -35,6 +35,12 @@ FIGURE_FLAGS = {
                                          help="spectrum: upper limit of the level axis")),
     "cut": (("--cut",), dict(metavar="L", type=int,
                              help="sectors: the cut whose spectrum is drawn (default middle)")),
+    "select": (("--select",), dict(metavar="FRACTION", type=float,
+                                   help="mutual: mark sites with s_i >= FRACTION x max s_i "
+                                        "(default 0.1)")),
+    "swap_bond_dim": (("--swap-bond-dim",), dict(
+        metavar="CHI", type=int, help="ordering: bond cap of the swap gates that reorder an "
+                                      "MPS checkpoint (default its largest bond)")),
     "title": (("--title",), dict(help="figure title ('' for none)")),
 }
 

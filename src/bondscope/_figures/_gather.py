@@ -104,7 +104,8 @@ def checked_meta(meta, where):
     Examples
     --------
     >>> checked_meta({"time": 0.5, "boundary": [1, 2]}, "ck.h5")
-    ({'time': 0.5}, ["ck.h5: run metadata 'boundary' = [1, 2] ignored (expected 'open' or 'periodic')"])
+    ({'time': 0.5}, ["ck.h5: run metadata 'boundary' = [1, 2] ignored (expected 'open' or \
+'periodic')"])
     """
     clean, notes = {}, []
     for key, value in meta.items():

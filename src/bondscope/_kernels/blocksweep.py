@@ -232,7 +232,7 @@ def sector_pool():
             yield lambda f, items: list(ex.map(f, items))
 
 
-def block_chain(leftward, rightward, first, last, n, store, tick, dtype, ledger):
+def block_chain(leftward, rightward, first, last, n, store, tick, dtype, ledger, scales):
     """Charge-resolved Schmidt values of every cut from block-wise sweeps.
 
     Parameters
@@ -253,6 +253,9 @@ def block_chain(leftward, rightward, first, last, n, store, tick, dtype, ledger)
     ledger : GaugeLedger
         Receives the norms of the blocks and bond matrices met
         (:mod:`.conditioning`), from which the floors are bounded.
+    scales : SweepScales
+        Balances every bond matrix (all its sectors by one power of two) and
+        keeps the exponents (:mod:`.balance`).
 
     Returns
     -------
@@ -284,7 +287,7 @@ def block_chain(leftward, rightward, first, last, n, store, tick, dtype, ledger)
         for i, blocks in leftward:
             if env is None:
                 env = {last(): np.ones((1, 1), dtype=dtype)}
-            env = _run(pool, _lq_sector, _by_sector(blocks, env, left=True))
+            env = scales.right(i, _run(pool, _lq_sector, _by_sector(blocks, env, left=True)))
             ledger.right_norms(i, block_norms(blocks)[1], bond_norm(env))
             if i > 0:
                 env_keys[i] = list(env)
@@ -294,7 +297,7 @@ def block_chain(leftward, rightward, first, last, n, store, tick, dtype, ledger)
         r = {first(): np.ones((1, 1), dtype=dtype)}
         cuts = []
         for i, blocks in rightward:
-            r = _run(pool, _qr_sector, _by_sector(blocks, r, left=False))
+            r = scales.left(i, _run(pool, _qr_sector, _by_sector(blocks, r, left=False)))
             ledger.left_norms(i, block_norms(blocks)[0], bond_norm(r))
             tick()
             if i == n - 1:

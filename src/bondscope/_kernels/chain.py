@@ -13,6 +13,7 @@ from concurrent.futures import ThreadPoolExecutor
 import numpy as np
 
 from .._source import source_eps
+from .balance import SweepScales, balanced
 from .conditioning import GaugeLedger, gauge_floors
 from .linalg import SweepResult, normalised, r_factor, svdvals
 from .parallel import dask_client, gathered, lanes, locked
@@ -58,7 +59,8 @@ def qr_step(r, a):
     return r_factor(out.reshape(c, d * k).T)
 
 
-def _sequential_chain(src, store, tick, values, ledger, bond_dim=None, weight_tol=None):
+def _sequential_chain(src, store, tick, values, ledger, scales, bond_dim=None,
+                      weight_tol=None):
     """Singular values of R_i L_i per cut, right-to-left sweep then left-to-right sweep.
 
     With ``bond_dim`` or ``weight_tol``, the left-to-right sweep also compresses
@@ -69,7 +71,7 @@ def _sequential_chain(src, store, tick, values, ledger, bond_dim=None, weight_to
     env = np.ones((1, 1), dtype=src.compute_dtype)
     for i in range(n - 1, 0, -1):
         a = src.tensor(i)
-        env = lq_step(a, env)
+        env = scales.right(i, lq_step(a, env))
         ledger.right(i, a, env)
         store.put(f"L{i}", env)
         tick()
@@ -81,9 +83,9 @@ def _sequential_chain(src, store, tick, values, ledger, bond_dim=None, weight_to
         if track:
             block = (w @ a.reshape(a.shape[0], -1)).reshape(-1, a.shape[2])
             u, e = truncation_step(block @ env, bond_dim, weight_tol)
-            w = u.conj().T @ block
+            w = balanced(u.conj().T @ block, src.name, src.labels[i])[0]
             eps.append(e)
-        r = qr_step(r, a)
+        r = scales.left(i, qr_step(r, a))
         ledger.left(i, a, r)
         raw.append(values(r, env))
         tick()
@@ -116,7 +118,7 @@ def _until_failure(job, stop):
         raise
 
 
-def _concurrent_chain(src, store, tick, values, ledger):
+def _concurrent_chain(src, store, tick, values, ledger, scales):
     """The two sweeps of :func:`_sequential_chain` run side by side, one per thread.
 
     Neither sweep needs the other's results, so both start at once, the
@@ -137,7 +139,7 @@ def _concurrent_chain(src, store, tick, values, ledger):
             if stop.is_set():
                 return
             a = src.tensor(i)
-            env = lq_step(a, env)
+            env = scales.right(i, lq_step(a, env))
             ledger.right(i, a, env)
             waiting = meet(i, "L", env)
             if waiting is not None:
@@ -150,7 +152,7 @@ def _concurrent_chain(src, store, tick, values, ledger):
             if stop.is_set():
                 return
             a = src.tensor(i)
-            r = qr_step(r, a)
+            r = scales.left(i, qr_step(r, a))
             ledger.left(i, a, r)
             waiting = meet(i + 1, "R", r)
             if waiting is not None:
@@ -196,7 +198,11 @@ def chain_spectra(src, *, bond_dim=None, weight_tol=None, scratch=None, tick=Non
     eps cond(G)^2 at every cut.  The sweeps record the norms they multiply
     (:class:`.conditioning.GaugeLedger`, O(d chi^2) per site) and each cut's
     floor bounds that rounding too, at the coarser of the stored and compute
-    precisions; a ResolutionWarning says when it exceeds sqrt(eps).
+    precisions; a ResolutionWarning says when it exceeds sqrt(eps).  After
+    every step the new bond matrix is divided by the power of two that brings
+    its largest entry into [1/2, 1) (:class:`.balance.SweepScales`, exact), so
+    a chain whose products leave the floating-point range is profiled as well;
+    the exponents give the norm and the ledger's units.
 
     Work per site: two products with a bond matrix, two QR factorisations and
     one values-only SVD of a chi x chi matrix; O(N d chi^3) in all.  Every
@@ -230,12 +236,15 @@ def chain_spectra(src, *, bond_dim=None, weight_tol=None, scratch=None, tick=Non
     track = bond_dim is not None or weight_tol is not None
     tick = locked(tick)
     values = _bond_values(dask_client())
-    ledger = GaugeLedger(src.sites)
+    ledger, scales = GaugeLedger(src.sites), SweepScales(src.sites, src.name, src.labels)
     with BondStore(scratch) as store, lanes() as count:
         if track or count < 2:
-            raw, eps = _sequential_chain(src, store, tick, values, ledger, bond_dim, weight_tol)
+            raw, eps = _sequential_chain(src, store, tick, values, ledger, scales, bond_dim,
+                                         weight_tol)
         else:
-            raw, eps = _concurrent_chain(src, store, tick, values, ledger), []
+            raw, eps = _concurrent_chain(src, store, tick, values, ledger, scales), []
+    removed = scales.exponent(1, 1)             # the first cut's values: R_1 L_1
+    scales.rescale(ledger, removed)
     raw = gathered(raw)
     spectra, norm = [], None
     for s in raw:
@@ -244,4 +253,5 @@ def chain_spectra(src, *, bond_dim=None, weight_tol=None, scratch=None, tick=Non
         spectra.append(s)
     sizes = [max(s.size, 1) * src.shapes[i][1] for i, s in enumerate(spectra)]
     floors = gauge_floors(spectra, sizes, ledger.factors(norm), source_eps(src), src.name)
-    return SweepResult(spectra, floors, norm, "qr-sweep", infidelity(eps) if track else None)
+    return SweepResult(spectra, floors, norm, "qr-sweep", infidelity(eps) if track else None,
+                       norm_exponent=removed)

@@ -11,6 +11,7 @@ from .store import BondStore
 
 __all__ = [
     "SHELF_BYTES",
+    "THREADED_BOND",
     "EnvironmentShelf",
     "SiteDensities",
     "assemble",
@@ -21,6 +22,11 @@ __all__ = [
 
 # In-memory budget of the right-side blocks before they spill to the scratch directory.
 SHELF_BYTES = 64 * 2**20
+# Below this bond dimension the pair products run with one BLAS thread: threads inside
+# products this small cost more than they gain (measured, d = 4, two cores shared with
+# other work: chi = 128 took 4.1 s with one thread and 41 s with two; chi = 256 took
+# 8.3 s and 3.9 s; docs/performance.md figure 6).
+THREADED_BOND = 256
 
 
 class EnvironmentShelf(BondStore):
@@ -250,9 +256,18 @@ def chain_densities(src, parity=None, first_sites=None, scratch=None, tick=None)
     S. R. White, Phys. Rev. Lett. 69, 2863 (1992) -- reduced density matrices from
     contracted blocks of a variational state.
     """
+    from threadpoolctl import threadpool_limits
+
     from .parallel import locked
 
-    tick = locked(tick)
+    if max(max(a, b) for a, _, b in src.shapes) < THREADED_BOND:
+        with threadpool_limits(limits=1, user_api="blas"):
+            return _densities(src, parity, first_sites, scratch, locked(tick))
+    return _densities(src, parity, first_sites, scratch, locked(tick))
+
+
+def _densities(src, parity, first_sites, scratch, tick):
+    """:func:`chain_densities` with the BLAS threads set."""
     n = src.sites
     signs = None
     if parity is not None:

@@ -78,7 +78,7 @@ def _label_step(pool, r, labels, a, site, env, charges):
     return cut, r, labels, (max(dropped, 0.0) / total if total > 0 else 0.0)
 
 
-def labelled_chain(src, charges, store, tick, ledger):
+def labelled_chain(src, charges, store, tick, ledger, scales):
     """Charge-resolved Schmidt values of every cut of a dense MPS in any gauge.
 
     Parameters
@@ -93,6 +93,9 @@ def labelled_chain(src, charges, store, tick, ledger):
         Called once per site tensor processed.
     ledger : GaugeLedger
         Receives the norms of the matrices the sweeps multiply (:mod:`.conditioning`).
+    scales : SweepScales
+        Balances every bond matrix and keeps the exponents (:mod:`.balance`); the
+        first cut's values are those of R_0 A_0 L_1.
 
     Returns
     -------
@@ -128,7 +131,7 @@ def labelled_chain(src, charges, store, tick, ledger):
     with lanes():                   # the plain engine's threads per sweep (half, from 2 up)
         for i in range(n - 1, 0, -1):
             a = src.tensor(i)
-            env = lq_step(a, env)
+            env = scales.right(i, lq_step(a, env))
             ledger.right(i, a, env)
             store.put(f"L{i}", env)
             tick()
@@ -140,6 +143,7 @@ def labelled_chain(src, charges, store, tick, ledger):
             a = src.tensor(i)
             cut, r, labels, lost = _label_step(pool, r, labels, a, charges.sites[i],
                                                store.pop(f"L{i + 1}"), charges)
+            r = scales.left(i, r)
             ledger.left(i, a, r)
             cuts.append(cut)
             dropped = max(dropped, lost)

@@ -48,8 +48,12 @@ class SweepResult:
     route : str
     infidelity : float or None
         1 - |<psi|psi_trunc>|^2 of successive truncation, when asked.
+    norm_exponent : int
+        The norm of the state the kernel read is ``norm * 2**norm_exponent``
+        (the scale its sweeps removed, :mod:`.balance`).
     """
 
-    def __init__(self, spectra, floors, norm, route, infidelity=None):
+    def __init__(self, spectra, floors, norm, route, infidelity=None, norm_exponent=0):
         self.spectra, self.floors, self.norm = spectra, floors, norm
         self.route, self.infidelity = route, infidelity
+        self.norm_exponent = norm_exponent

@@ -17,6 +17,7 @@ import numpy as np
 from .._errors import CheckpointError
 from .._source import source_eps
 from .store import BondStore
+from .transfer import left_step as _gram_left
 
 __all__ = ["renyi2_sweeps", "Renyi2", "mixed_cost", "HERMITIAN_TOLERANCE"]
 
@@ -56,13 +57,6 @@ def _scaled(x):
     if not n > 0:
         return x, -math.inf
     return x / n, math.log(n)
-
-
-def _gram_left(g, w):
-    """Left Gram step of a chain whose site is (left, m, right): sum conj(w) g w."""
-    a, m, b = w.shape
-    gw = (g @ w.reshape(a, m * b)).reshape(a * m, b)
-    return w.reshape(a * m, b).conj().T @ gw
 
 
 def _gram_right(g, w):

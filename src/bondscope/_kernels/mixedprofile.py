@@ -10,6 +10,8 @@ disentangled entropies from :mod:`.disentangle`.
 
 import math
 
+import numpy as np
+
 from .._measure import discarded_weight, kept_rank, spectrum_measures
 
 __all__ = ["mixed_spectra", "mixed_document", "CUT_MEANING"]
@@ -42,8 +44,12 @@ def mixed_spectra(src, opts, tick):
     result = chain_spectra(src, bond_dim=opts.bond_dim, weight_tol=opts.weight_tol,
                            scratch=opts.scratch, tick=tick)
     result.renyi2 = renyi2
-    result.operator_norm = result.norm if src.kind == "density-matrix" else None
+    # the sweep's norm is norm x 2^norm_exponent (balanced sweeps); the trace replaces it
+    with np.errstate(over="ignore"):
+        operator_norm = float(np.ldexp(result.norm, result.norm_exponent))
+    result.operator_norm = operator_norm if src.kind == "density-matrix" else None
     result.norm = renyi2.trace if src.kind == "density-matrix" else math.sqrt(renyi2.trace)
+    result.norm_exponent = 0
     result.disentangled = None
     if opts.disentangle:
         from .disentangle import disentangle_cuts

@@ -36,6 +36,7 @@ import numpy as np
 from .._errors import CheckpointError
 from .._measure import resolution_floor, spectrum_measures
 from .._source import source_eps
+from .balance import SweepScales
 from .blocksweep import charge_groups
 from .conditioning import GaugeLedger, warn_large_floor
 
@@ -82,12 +83,14 @@ class SectorResult:
     route : str
     infidelity : None
         Truncation is not tracked by these routes.
+    norm_exponent : int
+        The state's norm is ``norm * 2**norm_exponent`` (the scale the sweeps removed).
     """
 
-    def __init__(self, sectors, floors, total_charge, leak, norm, route):
+    def __init__(self, sectors, floors, total_charge, leak, norm, route, norm_exponent=0):
         self.sectors, self.floors = sectors, floors
         self.total_charge, self.leak, self.norm, self.route = total_charge, leak, norm, route
-        self.infidelity = None
+        self.infidelity, self.norm_exponent = None, norm_exponent
         self.spectra = [np.sort(np.concatenate([v for _, v in cut]))[::-1] if cut
                         else np.zeros(1) for cut in sectors]
 
@@ -316,13 +319,14 @@ def chain_sectors(src, charges, *, scratch=None, leak_tol=None, tick=None, route
     n, dtype = src.sites, src.compute_dtype
     tol = leak_tolerance(src.dtype) if leak_tol is None else leak_tol
     budget, ledger, totals = _store_budget(src), GaugeLedger(n), None
+    scales = SweepScales(n, src.name, src.labels)
     if hasattr(src, "blocks"):
         with BondStore(scratch, budget) as store:
             raw, first, last = block_chain(
                 ((i, src.blocks(i)) for i in range(n - 1, -1, -1)),
                 ((i, src.blocks(i)) for i in range(n)),
                 lambda: src.first_charge, lambda: src.last_charge, n, store, tick, dtype,
-                ledger)
+                ledger, scales)
         route, leak = "block-sweep", 0.0
     else:
         try:
@@ -332,18 +336,23 @@ def chain_sectors(src, charges, *, scratch=None, leak_tol=None, tick=None, route
             with BondStore(scratch, budget) as store:
                 raw, first, last = block_chain(
                     leftward, rightward, lambda: charges.key(bonds[0][0]),
-                    lambda: charges.key(bonds[n][0]), n, store, tick, dtype, ledger)
+                    lambda: charges.key(bonds[n][0]), n, store, tick, dtype, ledger,
+                    scales)
             route, leak = "block-sweep", 0.0
         except NotBlockStructured:
-            ledger = GaugeLedger(n)
+            ledger, scales = GaugeLedger(n), SweepScales(n, src.name, src.labels)
             with BondStore(scratch, budget) as store:
-                raw, dropped, totals = labelled_chain(src, charges, store, tick, ledger)
+                raw, dropped, totals = labelled_chain(src, charges, store, tick, ledger,
+                                                      scales)
             route = "charge-sweep"
     if route == "block-sweep":
         raw = [sorted((charges.key(charges.sub(q, first)), v) for q, v in cut)
                for cut in raw]
         total = charges.key(charges.sub(last, first))
     cuts, norm = _normalised_cuts(raw, src.name)
+    # the first cut's values: R_1 L_1, or R_0 A_0 L_1 in the charge sweep
+    removed = scales.exponent(int(route == "block-sweep"), 1)
+    scales.rescale(ledger, removed)
     eps = source_eps(src)
     sizes = [max(src.shapes[i][0], src.shapes[i][2]) * src.shapes[i][1] for i in range(n - 1)]
     rounding = eps * np.sqrt(sizes) * ledger.factors(norm)
@@ -351,7 +360,7 @@ def chain_sectors(src, charges, *, scratch=None, leak_tol=None, tick=None, route
         # rounding leaks weight out of the total charge: up to the square of its bound
         total, outside = _refuse(src.name, totals, charges, max(tol, float(rounding.max()) ** 2))
         leak = outside + dropped
-    result = SectorResult(cuts, [], total, leak, norm, route)
+    result = SectorResult(cuts, [], total, leak, norm, route, removed)
     result.floors = [max(resolution_floor(s, "svd", size, eps=eps), float(g), math.sqrt(leak))
                      for s, size, g in zip(result.spectra, sizes, rounding)]
     warn_large_floor(rounding, eps, src.name)
