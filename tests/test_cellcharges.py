@@ -8,10 +8,10 @@ XX cells from the generator scripts/cellstate.py (iTEBD from a Neel state).
 
 import math
 import re
-import sys
 import warnings
 from pathlib import Path
 
+import cellstate
 import h5py
 import numpy as np
 import pytest
@@ -23,8 +23,6 @@ from bondscope._kernels.cellcharges import bond_charges, charge_gauge, sector_sp
 from bondscope._kernels.transfer import left_map
 
 ROOT = Path(__file__).resolve().parents[1]
-sys.path.insert(0, str(ROOT / "scripts"))
-import cellstate
 
 EPS = np.finfo(np.float64).eps
 
