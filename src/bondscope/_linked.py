@@ -34,12 +34,15 @@ def _resolve(name, holder):
     return beside if beside.exists() or not path.exists() else path.resolve()
 
 
-def linked_files(f):
+def linked_files(f, links=True):
     """Every file the open checkpoint ``f`` refers to, with what refers to it.
 
     Parameters
     ----------
     f : h5py.File
+    links : bool
+        Also external links (False: virtual-dataset sources only, without the
+        walk of the link table).
 
     Returns
     -------
@@ -72,7 +75,8 @@ def linked_files(f):
                                   "dataset": vmap.dset_name, "kind": "virtual dataset",
                                   "name": "/" + name})
 
-    f.visititems_links(visit_link)
+    if links:
+        f.visititems_links(visit_link)
     f.visititems(visit)
     return found
 
@@ -97,9 +101,7 @@ def missing_sources(f):
     import h5py
 
     missing, checked = [], {}
-    for link in linked_files(f):
-        if link["kind"] != "virtual dataset":
-            continue
+    for link in linked_files(f, links=False):
         key = (link["file"], link["dataset"])
         if "%" in Path(link["file"]).name:  # a printf-style name pattern: many files, unchecked
             continue

@@ -30,7 +30,7 @@ class UnnormalisedStateWarning(UserWarning):
 
 def open_any(source, options):
     """A validated source from a checkpoint path, a state vector or a list of site tensors."""
-    from ._source import amplitudes_from_array, chain_from_arrays
+    from ._source import amplitudes_from_array
 
     if isinstance(source, (str, os.PathLike)):
         from ._blocksparse import has_block_layout, open_blocks
@@ -49,8 +49,6 @@ def open_any(source, options):
     if isinstance(source, np.ndarray):
         return amplitudes_from_array(source, options.local_dim, options.precision)
     if isinstance(source, (list, tuple)):
-        if options.unit_cell is False:
-            return chain_from_arrays(list(source), options.axes, options.precision)
         from ._cellsource import tensors_source
 
         return tensors_source(list(source), options.axes, options.precision, options.unit_cell)

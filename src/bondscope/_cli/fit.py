@@ -64,13 +64,14 @@ def _run(args):
 
 def _checkpoint_boundary(path, prof):
     """The checkpoint's own ``boundary`` attribute when the profile has none (else None)."""
+    from .._analyses.scaling import BOUNDARIES
     from .._document import is_saved_profile
     from .._runinfo import run_attributes
 
     if prof.get("boundary") is not None or is_saved_profile(path):
         return None
     found = run_attributes(path, ("boundary",)).get("boundary")
-    return found if found in ("open", "periodic") else None
+    return found if found in BOUNDARIES else None
 
 
 def text_lines(res):
