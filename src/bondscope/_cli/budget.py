@@ -22,13 +22,6 @@ def add_arguments(p):
     add_flags(p, *LAYOUT_FLAGS, "route", "precision", *RESOURCE_FLAGS)
 
 
-def run(args):
-    from ._warnings import quiet_warnings
-
-    with quiet_warnings(args.quiet):
-        return _run(args)
-
-
 def _budget(prof, args):
     from .._analyses.budget import bond_budget
 
@@ -36,7 +29,7 @@ def _budget(prof, args):
                        dtype=args.dtype, local_dim=args.local_dim)
 
 
-def _run(args):
+def run(args):
     import warnings
 
     from .._analyses.budget import ResolutionError

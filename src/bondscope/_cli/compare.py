@@ -30,13 +30,6 @@ def _runs(text):
 
 
 def run(args):
-    from ._warnings import quiet_warnings
-
-    with quiet_warnings(args.quiet):
-        return _run(args)
-
-
-def _run(args):
     from pathlib import Path
 
     from .._analyses.comparison import checkpoint_meta, compare_profiles

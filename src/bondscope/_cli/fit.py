@@ -23,13 +23,6 @@ def add_arguments(p):
 
 
 def run(args):
-    from ._warnings import quiet_warnings
-
-    with quiet_warnings(args.quiet):
-        return _run(args)
-
-
-def _run(args):
     import dataclasses
 
     from .._analyses.scaling import fit_scaling

@@ -38,13 +38,11 @@ def add_arguments(p):
 def run(args):
     from .._analyses.mutual import mutual_information
     from .._mutualtext import mutual_text
-    from ._warnings import quiet_warnings
 
-    with quiet_warnings(args.quiet):
-        result = mutual_information(
-            args.file, profile_options(args), select=args.select, reorder=args.reorder,
-            swap_bond_dim=args.swap_bond_dim, budget_target=args.budget_target,
-            workers=args.workers, scheduler=args.scheduler, progress=not args.quiet)
+    result = mutual_information(
+        args.file, profile_options(args), select=args.select, reorder=args.reorder,
+        swap_bond_dim=args.swap_bond_dim, budget_target=args.budget_target,
+        workers=args.workers, scheduler=args.scheduler, progress=not args.quiet)
     saved = result.save(args.output, protect=[args.file]) if args.output else None
     text = result.to_json(indent=1) if args.json else mutual_text(result)
     if saved and not args.json:

@@ -100,10 +100,8 @@ def figure_options(args, draw):
 def run(args):
     from .._figures._kinds import figure_function, plot
     from .._figures._names import visible
-    from ._warnings import quiet_warnings
 
-    with quiet_warnings(args.quiet):
-        plot(args.sources, args.kind, args.output,
-             **figure_options(args, figure_function(args.kind)))
+    plot(args.sources, args.kind, args.output,
+         **figure_options(args, figure_function(args.kind)))
     print(f"{args.kind} figure written to {visible(args.output)}")
     return 0

@@ -26,18 +26,16 @@ def run(args):
     from .._options import ProfileOptions
     from .._pipeline import profile
     from .._text import profile_table, visible
-    from ._warnings import quiet_warnings
 
     path = _one_checkpoint(args.file, visible)
     opts = profile_options(args)
-    with quiet_warnings(args.quiet):
-        if is_saved_profile(path):
-            prof = load_profile(path)
-            if opts.recorded() != ProfileOptions().recorded() and not args.quiet:
-                print(f"note: {visible(path)} is a saved profile, shown as saved; profiling "
-                      "options apply to checkpoints", file=sys.stderr)
-        else:
-            prof = profile(path, opts, progress=not args.quiet)
+    if is_saved_profile(path):
+        prof = load_profile(path)
+        if opts.recorded() != ProfileOptions().recorded() and not args.quiet:
+            print(f"note: {visible(path)} is a saved profile, shown as saved; profiling "
+                  "options apply to checkpoints", file=sys.stderr)
+    else:
+        prof = profile(path, opts, progress=not args.quiet)
     if args.output:
         prof.save(args.output, protect=[path])
     if args.json:

@@ -19,10 +19,8 @@ def add_arguments(p):
 def run(args):
     from .._figures._names import visible
     from .._report import write_report
-    from ._warnings import quiet_warnings
     from .plot import fit_choice
 
-    with quiet_warnings(args.quiet):
-        path = write_report(args.results, args.output, title=args.title, fit=fit_choice(args))
+    path = write_report(args.results, args.output, title=args.title, fit=fit_choice(args))
     print(f"report written to {visible(path)}")
     return 0
