@@ -21,7 +21,7 @@ from threadpoolctl import threadpool_limits
 import bondscope
 from bondscope._kernels import amplitudes, chain, parallel
 from bondscope._kernels import store as bond_store
-from bondscope._kernels.balance import SweepScales
+from bondscope._kernels.balance import SweepScales, balanced, balanced_blocks
 from bondscope._kernels.conditioning import GaugeLedger
 from bondscope._errors import CheckpointError
 from bondscope._source import chain_from_arrays
@@ -267,3 +267,29 @@ def test_cli_precision_option(tmp_path, precision, dtype, eps):
         n = len(c["schmidt_values"]) * 2
         eps32 = float(np.finfo(np.float32).eps)
         assert c["resolution_floor"] >= eps32 * n * c["schmidt_values"][0] * (1 - 1e-6)
+
+
+def _with_nan(shape, where, dtype):
+    m = np.ones(shape, dtype=dtype)
+    m[where] = complex(1, np.nan) if np.dtype(dtype).kind == "c" else np.nan
+    return m
+
+
+BAD_BONDS = [
+    # NaN only in the imaginary part of one entry (Python's max over the parts skipped it)
+    pytest.param(lambda: balanced(_with_nan((3, 3), (1, 2), np.complex128), "f", 4),
+                 id="imaginary-nan"),
+    # NaN in the real part of a real matrix
+    pytest.param(lambda: balanced(_with_nan((3, 3), (0, 0), np.float64), "f", 4), id="real-nan"),
+    # NaN in the last of several sector blocks (after finite ones)
+    pytest.param(lambda: balanced_blocks({0: np.ones((2, 2)), 1: np.ones((1, 1)),
+                                          2: _with_nan((2, 2), (1, 1), np.float64)}, "f", 4),
+                 id="block-nan"),
+]
+
+
+@pytest.mark.parametrize("call", BAD_BONDS)
+def test_balancing_refuses_any_nan(call):
+    # common practice: a NaN anywhere in a bond matrix is bad input, never a finite scale
+    with pytest.raises(CheckpointError, match="site 4: .*NaN or Inf"):
+        call()

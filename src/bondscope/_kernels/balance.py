@@ -20,7 +20,12 @@ __all__ = ["SweepScales", "balanced", "balanced_blocks"]
 def _top(m):
     """Largest |entry| of the real and imaginary parts (NaN or Inf when any entry is)."""
     parts = (m.real, m.imag) if m.dtype.kind == "c" else (m,)
-    return max((float(np.abs(p).max()) for p in parts if p.size), default=0.0)
+    return _largest([np.abs(p).max() for p in parts if p.size])
+
+
+def _largest(tops):
+    """The largest of some entry sizes, NaN if any is NaN (Python's max skips one), 0 if none."""
+    return float(np.max(tops)) if len(tops) else 0.0
 
 
 def _exponent(top, name, site, dtype):
@@ -67,7 +72,7 @@ def balanced_blocks(blocks, name, site):
     dict {key: ndarray}; its arrays are overwritten.
     """
     dtype = next(iter(blocks.values())).dtype if blocks else np.float64
-    e = _exponent(max((_top(b) for b in blocks.values()), default=0.0), name, site, dtype)
+    e = _exponent(_largest([_top(b) for b in blocks.values()]), name, site, dtype)
     if e:
         for b in blocks.values():
             _scale(b, e)
