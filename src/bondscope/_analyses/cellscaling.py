@@ -14,6 +14,7 @@ import numpy as np
 
 from .._results import Result
 from .inputs import as_profile, nats_per_unit
+from .lines import fit_line
 from .scaling import AREA_C
 
 __all__ = ["fit_cell_scaling", "CellScaling", "predicted_kappa"]
@@ -54,18 +55,6 @@ class CellScaling(Result):
             return f"{self.verdict}: {self.reason}"
         err = "?" if self.central_charge_error is None else f"{self.central_charge_error:.3g}"
         return f"{self.verdict}: c = {self.central_charge:.4f} +- {err}"
-
-
-def _line(x, y):
-    """Least squares y = a x + b: (a, b, standard error of a or None)."""
-    A = np.stack([x, np.ones_like(x)], axis=1)
-    coef, *_ = np.linalg.lstsq(A, y, rcond=None)
-    dof = len(x) - 2
-    if dof <= 0:
-        return float(coef[0]), float(coef[1]), None
-    resid = y - A @ coef
-    cov = (resid @ resid / dof) * np.linalg.pinv(A.T @ A)
-    return float(coef[0]), float(coef[1]), float(math.sqrt(max(cov[0, 0], 0.0)))
 
 
 def _point(prof, name):
@@ -162,15 +151,16 @@ def fit_cell_scaling(sources, *, names=None, options=None):
     spread = np.array([q["entropy_spread"] for q in points])
     log_xi = np.log([q["correlation_length"] for q in points])
     log_chi = np.log(chis)
-    slope, s0, slope_err = _line(log_xi, S)
+    slope, s0, slope_err = fit_line(log_xi, S)[:3]
     c = 6.0 * slope
     parts = {"fit": None if slope_err is None else 6.0 * slope_err}
     if len(points) >= 3:
-        parts["smallest_dropped"] = abs(6.0 * _line(log_xi[1:], S[1:])[0] - c)
-    parts["bonds"] = max(abs(6.0 * _line(log_xi, S + sign * spread)[0] - c) for sign in (-1, 1))
+        parts["smallest_dropped"] = abs(6.0 * fit_line(log_xi[1:], S[1:]).slope - c)
+    parts["bonds"] = max(abs(6.0 * fit_line(log_xi, S + sign * spread).slope - c)
+                         for sign in (-1, 1))
     known = [v for v in parts.values() if v is not None]
     c_err = math.sqrt(sum(v * v for v in known)) if len(points) >= 3 else None
-    kappa, _, kappa_err = _line(log_chi, log_xi)
+    kappa, _, kappa_err = fit_line(log_chi, log_xi)[:3]
     kp = kp_err = None
     if c >= AREA_C:
         kp = predicted_kappa(c)

@@ -4,6 +4,8 @@ import math
 
 import numpy as np
 
+from .lines import fit_line
+
 __all__ = ["GOOD_R2", "PREFERENCE", "RESOLVED", "distance_profile", "fit_decay"]
 
 # a distance counts in the fit when its mean I(r) exceeds this many floors (common practice)
@@ -29,20 +31,6 @@ def distance_profile(mi, floors):
         rows.append({"distance": r, "mean": float(vals.mean()), "spread": float(vals.std()),
                      "pairs": int(vals.size), "floor": float(fl.mean())})
     return rows
-
-
-def _line(x, y):
-    """Least-squares line y = a + b x: (a, b, standard error of b, rms residual, R^2)."""
-    design = np.column_stack([np.ones_like(x), x])
-    coef, *_ = np.linalg.lstsq(design, y, rcond=None)
-    resid = y - design @ coef
-    dof = max(len(x) - 2, 1)
-    sigma2 = float(resid @ resid) / dof
-    cov = sigma2 * np.linalg.inv(design.T @ design)
-    total = float(((y - y.mean()) ** 2).sum())
-    r2 = 1.0 - float(resid @ resid) / total if total > 0 else 0.0
-    return (float(coef[0]), float(coef[1]), math.sqrt(max(cov[1, 1], 0.0)),
-            math.sqrt(float(resid @ resid) / len(x)), r2)
 
 
 def fit_decay(rows, max_distance=None):
@@ -90,12 +78,12 @@ def fit_decay(rows, max_distance=None):
         return out
     r = np.array([row["distance"] for row in used], dtype=float)
     y = np.log([row["mean"] for row in used])
-    a, b, sb, rms_e, r2_e = _line(r, y)
+    b, a, sb, rms_e, r2_e = fit_line(r, y)
     xi = -1.0 / b if b < 0 else math.inf
     out["exponential"] = {"correlation_length": xi if math.isfinite(xi) else None,
                           "error": xi * xi * sb if math.isfinite(xi) else None,
                           "amplitude": math.exp(a), "rms": rms_e, "r_squared": r2_e}
-    a, b, sb, rms_p, r2_p = _line(np.log(r), y)
+    b, a, sb, rms_p, r2_p = fit_line(np.log(r), y)
     out["power_law"] = {"exponent": -b, "error": sb, "amplitude": math.exp(a),
                         "rms": rms_p, "r_squared": r2_p}
     if rms_e * PREFERENCE <= rms_p and r2_e >= GOOD_R2 and math.isfinite(xi):
