@@ -59,13 +59,16 @@ def _name(source, prof, i):
     return prof.source or f"#{i}"
 
 
-def checkpoint_meta(path):
+def checkpoint_meta(path, rename=None):
     """Root attributes ``time`` and ``max_discarded_weight`` of an HDF5 checkpoint.
 
-    Returns an empty dict for saved profiles and files without them; values
-    that are not finite numbers are left out.
+    ``rename`` maps those quantities to the attribute names a series uses
+    (as in :func:`.._runinfo.run_attributes`).  Returns an empty dict for saved
+    profiles and files without them; values that are not finite numbers are
+    left out.
     """
-    return {k: float(v) for k, v in run_attributes(path, _META_ATTRS).items() if _number(v)}
+    return {k: float(v) for k, v in run_attributes(path, _META_ATTRS, rename).items()
+            if _number(v)}
 
 
 def _number(value):

@@ -3,13 +3,11 @@
 import csv
 import io
 import json
-import math
 import os
 from pathlib import Path
 
 from .._errors import EXIT_SOME_FAILED, one_line
 from .._files import atomic_write, csv_cell
-from .._runinfo import run_attributes
 from .._text import natural_key
 
 __all__ = ["BatchSummary", "COLUMNS", "PROFILES", "SUMMARY_FORMAT", "SERIES_FORMAT", "row",
@@ -134,22 +132,14 @@ def _order(row):
     return (time is None, time or 0, bond is None, bond or 0, natural_key(row["source"]))
 
 
-def _run_meta(path, rename):
-    """The run's time and discarded weight read under the batch's attribute names
-    (finite numbers only), for the series comparison."""
-    found = run_attributes(path, ("time", "max_discarded_weight"), rename)
-    return {k: float(v) for k, v in found.items()
-            if isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)}
-
-
 def _compare_series(out, members, rename):
     """The comparison verdict of one series (``bondscope compare`` on its profiles)."""
-    from .._analyses.comparison import compare_profiles
+    from .._analyses.comparison import checkpoint_meta, compare_profiles
 
     try:
         res = compare_profiles([out / m["profile"] for m in members],
                                names=[Path(m["checkpoint"]).name for m in members],
-                               meta=[_run_meta(m["checkpoint"], rename) for m in members])
+                               meta=[checkpoint_meta(m["checkpoint"], rename) for m in members])
     except (ValueError, OSError) as exc:
         return {"error": f"{type(exc).__name__}: {one_line(exc)}"}
     keep = ("series", "runs", "largest_difference", "converged", "threshold", "extrapolation",
