@@ -536,10 +536,10 @@ def test_run_attribute_names(tmp_path, options, found):
     ({"time": "label"}, {}),  # a text time is left out
 ])
 def test_series_comparison_reads_the_batch_names(tmp_path, rename, meta):
-    from bondscope._batch.summaries import _run_meta
+    from bondscope._analyses.comparison import checkpoint_meta
 
     path = checkpoint(tmp_path / "ck.h5", time=0.5, t=2.5, trunc_err=1e-9, label="x")
-    assert _run_meta(path, rename) == meta
+    assert checkpoint_meta(path, rename) == meta
 
 
 @pytest.mark.parametrize("kwargs, error", [
