@@ -47,7 +47,7 @@ _Z = np.diag([1.0, -1.0])
 _I = np.eye(2)
 _SP = np.array([[0.0, 1.0], [0.0, 0.0]])
 
-CellState = namedtuple("CellState", "tensors schmidt steps converged")
+CellState = namedtuple("CellState", "tensors schmidt steps converged raw labels")
 CellState.__doc__ = """Result of `cell_ground_state`.
 
 Attributes
@@ -60,6 +60,10 @@ steps : int
     Imaginary-time steps taken (each updates both bonds).
 converged : bool
     Whether the last stage reached its Schmidt-value tolerance.
+raw : list of ndarray
+    The tensors before the cell's normalisation (to continue the run: ``warm``).
+labels : list of ndarray or None
+    With ``charges``: the charge of each Schmidt value on the two bonds.
 """
 
 
@@ -91,20 +95,59 @@ def xx_energy():
     return -2.0 / math.pi
 
 
-def _update(lam_left, a, b, gate, chi, cutoff):
-    """Apply a two-site gate to (a, b); return (new a, Schmidt values between, new b)."""
+def _sector_svd(m, row_q, col_q):
+    """SVD of a matrix that is block-diagonal in a charge: (s, vh, charge of each value)."""
+    values, rows, labels = [], [], []
+    for q in np.intersect1d(row_q, col_q):
+        r, c = np.flatnonzero(row_q == q), np.flatnonzero(col_q == q)
+        _, s, vh = svd(m[np.ix_(r, c)], full_matrices=False, lapack_driver="gesvd")
+        full = np.zeros((s.size, m.shape[1]), dtype=m.dtype)
+        full[:, c] = vh
+        values.append(s)
+        rows.append(full)
+        labels.append(np.full(s.size, q))
+    s, vh, q = np.concatenate(values), np.concatenate(rows), np.concatenate(labels)
+    order = np.argsort(-s, kind="stable")
+    return s[order], vh[order], q[order]
+
+
+def _kept(s, chi, cutoff, whole):
+    """How many values to keep; ``whole`` drops a degenerate multiplet the bond would split."""
+    weights = s * s / np.sum(s * s)
+    keep = max(1, min(chi, int(np.count_nonzero(weights > cutoff))))
+    if whole:
+        while 1 < keep < s.size and s[keep] > s[keep - 1] * (1 - 1e-8):
+            keep -= 1
+    return keep
+
+
+def _update(lam_left, a, b, gate, chi, cutoff, bond_q=None, site_q=None):
+    """Apply a two-site gate to (a, b): (new a, Schmidt values between, new b, charges).
+
+    With ``site_q`` (the additive charge of each local state) and ``bond_q``
+    (that of the outer bonds of (a, b): one bond in a two-site cell whose
+    charge per cell is zero), theta is block-diagonal in the charge of the
+    bond between a and b, so each block is split on its own and every kept
+    vector carries one charge: the cell stays in its sector to rounding,
+    however long it runs.  The charges returned are those of the new bond
+    (None without ``site_q``).
+    """
     l, d, _ = a.shape
     theta = np.tensordot(a, b, axes=(2, 0))                             # l s t r
     theta = np.tensordot(gate, theta, axes=([2, 3], [1, 2])).transpose(2, 0, 1, 3)
     r = theta.shape[3]
-    _, s, vh = svd((lam_left[:, None, None, None] * theta).reshape(l * d, d * r),
-                   full_matrices=False, lapack_driver="gesvd")
-    weights = s * s / np.sum(s * s)
-    keep = max(1, min(chi, int(np.count_nonzero(weights > cutoff))))
+    m = (lam_left[:, None, None, None] * theta).reshape(l * d, d * r)
+    if site_q is None:
+        _, s, vh = svd(m, full_matrices=False, lapack_driver="gesvd")
+        q = None
+    else:
+        s, vh, q = _sector_svd(m, (bond_q[:, None] + site_q[None, :]).reshape(-1),
+                               (bond_q[None, :] - site_q[:, None]).reshape(-1))
+    keep = _kept(s, chi, cutoff, whole=site_q is not None)
     norm = np.linalg.norm(s[:keep])
     b_new = vh[:keep].reshape(keep, d, r)
     a_new = np.tensordot(theta, b_new.conj(), axes=([2, 3], [1, 2])) / norm
-    return a_new, s[:keep] / norm, b_new
+    return a_new, s[:keep] / norm, b_new, None if q is None else q[:keep]
 
 
 def trotter_gates(h):
@@ -136,7 +179,8 @@ def ising_gates(g):
 
 
 def cell_ground_state(gates, bond_dim, *, steps=(0.1, 0.03, 0.01, 0.003, 0.001), tol=1e-10,
-                      max_steps=20000, cutoff=1e-14, seed=0, start=None):
+                      max_steps=20000, cutoff=1e-14, seed=0, start=None, charges=None,
+                      warm=None):
     """Dominant state of repeated two-site gates on a two-site cell (iTEBD).
 
     Parameters
@@ -161,6 +205,16 @@ def cell_ground_state(gates, bond_dim, *, steps=(0.1, 0.03, 0.01, 0.003, 0.001),
         Start from the product of these local basis states instead (a state
         of definite charge: gates that conserve a charge then keep the cell
         in one sector, so it stays injective; a random start mixes sectors).
+    charges : (int, ...), optional
+        The conserved additive charge of each local basis state (with
+        ``start``, whose cell must carry charge zero).  Each update then
+        splits theta block by block (`_update`) and keeps degenerate
+        multiplets whole, so rounding cannot leak the cell out of its sector
+        over long runs, and a bond may keep fewer than ``bond_dim`` values.
+    warm : CellState, optional
+        Continue from this state (for example the result at a smaller bond
+        dimension) instead of a fresh start; with ``charges``, ``warm`` must
+        come from a charged run of the same ``start``.
 
     Returns
     -------
@@ -178,6 +232,13 @@ def cell_ground_state(gates, bond_dim, *, steps=(0.1, 0.03, 0.01, 0.003, 0.001),
     if start is not None:
         tensors = [np.eye(d)[s].reshape(1, d, 1) for s in start]
     lams = [np.ones(1), np.ones(1)]
+    site_q = None if charges is None else np.asarray(charges)
+    labels = None if site_q is None else [np.zeros(1, int), site_q[list(start[:1])]]
+    if site_q is not None and site_q[list(start)].sum() != 0:
+        raise ValueError(f"start {start} carries charge {site_q[list(start)].sum()}, not 0")
+    if warm is not None:
+        tensors, lams = [a.copy() for a in warm.raw], [v.copy() for v in warm.schmidt]
+        labels = None if warm.labels is None else [q.copy() for q in warm.labels]
     total, converged = 0, False
     for dt in steps:
         pair = gates(dt)
@@ -186,8 +247,11 @@ def cell_ground_state(gates, bond_dim, *, steps=(0.1, 0.03, 0.01, 0.003, 0.001),
         for k in range(max_steps):
             for i in (0, 1):
                 j = 1 - i
-                tensors[i], lams[j], tensors[j] = _update(lams[i], tensors[i], tensors[j],
-                                                          pair[i], bond_dim, cutoff)
+                tensors[i], lams[j], tensors[j], q = _update(
+                    lams[i], tensors[i], tensors[j], pair[i], bond_dim, cutoff,
+                    None if labels is None else labels[i], site_q)
+                if labels is not None:
+                    labels[j] = q
             total += 1
             if k % 10 == 9:
                 if snapshot.shape == lams[0].shape and \
@@ -195,7 +259,7 @@ def cell_ground_state(gates, bond_dim, *, steps=(0.1, 0.03, 0.01, 0.003, 0.001),
                     converged = True
                     break
                 snapshot = lams[0]
-    return CellState(_normalised(tensors), lams, total, converged)
+    return CellState(_normalised(tensors), lams, total, converged, tensors, labels)
 
 
 def _normalised(tensors):
